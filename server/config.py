@@ -1,0 +1,47 @@
+"""Settings of the web app and the CLI, read from the environment (prefix ``PANELWRIGHT_``).
+
+Every setting is documented in DEVELOPERS.md (a test checks).  Nothing here is secret: the
+app serves one office LAN and needs no key to run locally.
+"""
+
+from __future__ import annotations
+
+from pydantic import Field, field_validator
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+DEFAULT_DATABASE_URL = "sqlite:///./panelwright.db"
+
+
+class Settings(BaseSettings):
+    """Typed settings; each field is ``PANELWRIGHT_<NAME>`` in the environment."""
+
+    model_config = SettingsConfigDict(env_prefix="PANELWRIGHT_", extra="ignore")
+
+    database_url: str = Field(
+        DEFAULT_DATABASE_URL,
+        description="SQLAlchemy URL: sqlite:///path.db (default ./panelwright.db) or postgresql+psycopg://user:pw@host/db",
+    )
+    host: str = Field("127.0.0.1", description="Address `panelwright serve` binds; 0.0.0.0 opens it to the LAN")
+    port: int = Field(8000, ge=1, le=65535, description="TCP port `panelwright serve` listens on")
+    sqlite_busy_timeout_ms: int = Field(
+        5000, ge=0, description="How long a SQLite writer waits for another writer's lock before failing"
+    )
+    log_level: str = Field("info", description="Log level of the server (debug, info, warning, error)")
+    bench_endpoints: bool = Field(
+        False, description="Adds the bare benchmark endpoint used by tests/benchmarks/bench_web.py (off in production)"
+    )
+    calc_cache_size: int = Field(
+        8, ge=0, description="How many projects keep an in-memory calculator for incremental recompute"
+    )
+
+    @field_validator("database_url")
+    @classmethod
+    def _known_backend(cls, value: str) -> str:
+        if not (value.startswith("sqlite") or value.startswith("postgresql")):
+            raise ValueError("must be a sqlite:/// or postgresql+psycopg:// URL")
+        return value
+
+
+def get_settings() -> Settings:
+    """Fresh settings from the environment (tests build their own ``Settings``)."""
+    return Settings()

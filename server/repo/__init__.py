@@ -1,0 +1,1 @@
+"""Data access: ``select()`` queries with keyword-only arguments, one module per aggregate."""
