@@ -59,3 +59,16 @@ class UnknownSystemError(CalcError):
 
 class SizingError(CalcError):
     """No standard size satisfies a requirement (e.g. a load beyond every table row)."""
+
+
+class MeteredDataError(CalcError):
+    """A metered-demand CSV (or reading list) cannot be used: names the file and what is wrong.
+
+    ``bad_rows`` holds ``(line, reason)`` pairs when the refusal is about malformed rows
+    (strict import, or no usable row at all).
+    """
+
+    def __init__(self, message: str, *, source: str | None = None, bad_rows: tuple[tuple[int, str], ...] = ()) -> None:
+        self.source = source
+        self.bad_rows = tuple(bad_rows)
+        super().__init__(f"{source}: {message}" if source else message)
