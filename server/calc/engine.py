@@ -1,0 +1,1080 @@
+"""The calculation engine: rolls a whole project up from circuits to sources.
+
+Order of work (one tree per source; every element is fed exactly once, the project file
+parser guarantees it):
+
+1. **Own circuits** of each panel: per-phase connected VA (trade convention), phasor line
+   currents of constant-power loads (:mod:`server.calc.loads`), third-harmonic currents,
+   VA by load category, continuous VA, kitchen units, largest motor and cooling load.
+2. **Bottom-up roll-up.**  A node's aggregate is its own circuits plus what each child
+   presents to it.  A sub-panel maps phase for phase (A→A, B→B, C→C: a panelboard fed from a
+   3-pole breaker is connected phase for phase, whichever row the breaker sits in) and its
+   phasor line currents and third-harmonic neutral current add into the parent.  A
+   transformer presents its primary line currents (:func:`~server.calc.loads.reflect_through_transformer`)
+   and its secondary's connected VA by category, scaled by (1 + loss_pct/100) and spread
+   evenly over the feeding breaker's poles (trade convention).  Demand
+   (:func:`server.calc.demand.apply_demand`) is re-applied at every panel, transformer and
+   source from the aggregate of its whole subtree, so the 10 kVA receptacle allowance, the
+   kitchen unit count and the largest motor are taken once per node, never summed from the
+   panels below.
+3. **Local results** of each node: demand, design current, feeder, transformer sizing and
+   the warnings that depend only on the node and its subtree.
+4. **Top-down pass**: cumulative voltage drop (parent's cumulative + own feeder drop; a panel
+   on a transformer secondary starts from the transformer primary feeder's cumulative) and
+   bolted fault current from the source through every feeder and transformer.
+
+Design current (A): design_amps = max over phases of line_amps × design_va / connected_va,
+design_va = demand_va + 0.25 × continuous_demand_va (125 % of the continuous part, 100 % of
+the rest, NEC 215.2(A)(1); the 25 % of the largest motor is already inside demand_va).  The
+most-loaded phase sets the feeder.  0 when nothing is connected.
+
+:class:`Calculator` keeps every node's aggregates so that :meth:`Calculator.update_panel`
+recomputes one panel's circuits, re-aggregates its ancestors from cached child aggregates,
+re-runs demand/feeder/transformer sizing for those nodes only and then runs the cheap
+top-down pass; the result is identical to a full :func:`compute_project`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass, replace
+
+from . import demand as _demand
+from . import faults as _faults
+from . import feeders as _feeders
+from . import transformers as _xf
+from . import voltage_drop as _vd
+from .errors import Problem, ProjectFileError, SizingError
+from .loads import (
+    conj_power,
+    current_coefficients,
+    imbalance_pct,
+    load_amps,
+    neutral_current,
+    orientation,
+    phase_shares,
+    reflect_through_transformer,
+    reflect_triplens,
+    triplen_rotation,
+    triplens_pass,
+    winding_connection,
+)
+from .model import Category, Circuit, Panel, Project, Source, Status, Transformer
+from .projectfile import check_panel, check_topology, replace_panel
+from .results import (
+    CalcWarning,
+    CircuitResult,
+    FeederResult,
+    PanelResult,
+    ProjectResult,
+    Severity,
+    SourceResult,
+    TransformerResult,
+    WarningCode,
+)
+from .systems import SQRT3, SYSTEMS, SystemKind, SystemSpec, breaker_phases, breaker_slots
+
+#: NEC 210.20(A) / 215.3: an overcurrent device carries 125 % of the continuous load plus
+#: the noncontinuous load.
+CONTINUOUS_FACTOR = 1.25
+#: Common practice: the neutral of a 4-wire wye counts as current-carrying when the major
+#: portion of the load is nonlinear (NEC 310.15(E)(3)); "major portion" = more than half.
+HARMONIC_DOMINANT_SHARE = 0.5
+#: The 120 V loads of a high-leg delta all land on the centre-tapped A–C winding; above this
+#: share of the panel's connected VA a 208Y/120 system is usually the better choice.
+HIGH_LEG_LN_SHARE = 0.5
+
+_SEVERITY_RANK = {Severity.ERROR: 0, Severity.WARNING: 1, Severity.NOTE: 2}
+_KITCHEN = Category.KITCHEN.value
+_MOTOR = Category.MOTOR.value
+_COOLING = Category.COOLING.value
+_SPARE = Category.SPARE
+
+
+def sort_warnings(warnings: Iterable[CalcWarning]) -> tuple[CalcWarning, ...]:
+    """Severity first (errors, warnings, notes), then tag, slot and code."""
+    return tuple(
+        sorted(
+            warnings,
+            key=lambda w: (_SEVERITY_RANK[w.severity], w.tag, -1 if w.slot is None else w.slot, w.code.value),
+        )
+    )
+
+
+# --------------------------------------------------------------------------- aggregates
+
+
+class _Agg:
+    """Mutable running totals of a node (engine-internal; never leaves this module)."""
+
+    __slots__ = (
+        "phase_va",
+        "by_cat",
+        "cont_by_cat",
+        "kitchen_units",
+        "kitchen_top2",
+        "largest_motor",
+        "largest_cooling",
+        "line_i",
+        "line_i3",
+        "neutral_i3",
+        "p_w",
+        "q_var",
+        "h3_ln_va",
+        "h3_va",
+    )
+
+    def __init__(self, phases: tuple[str, ...]) -> None:
+        self.phase_va: dict[str, float] = dict.fromkeys(phases, 0.0)
+        self.by_cat: dict[str, float] = {}
+        self.cont_by_cat: dict[str, float] = {}
+        self.kitchen_units = 0
+        self.kitchen_top2 = (0.0, 0.0)
+        self.largest_motor = 0.0
+        self.largest_cooling = 0.0
+        self.line_i: dict[str, complex] = dict.fromkeys(phases, 0j)
+        self.line_i3: dict[str, float] = dict.fromkeys(phases, 0.0)
+        self.neutral_i3 = 0j  # phasor sum of line-to-neutral third-harmonic currents
+        self.p_w = 0.0
+        self.q_var = 0.0
+        self.h3_ln_va = 0.0  # VA of line-to-neutral loads with third-harmonic content
+        self.h3_va = 0.0  # Σ VA × harmonic3_pct/100 (for the K-factor)
+
+    def total_va(self) -> float:
+        return sum(self.phase_va.values())
+
+    def add_kitchen(self, va: float) -> None:
+        self.kitchen_units += 1
+        a, b = self.kitchen_top2
+        if va > a:
+            self.kitchen_top2 = (va, a)
+        elif va > b:
+            self.kitchen_top2 = (a, va)
+
+    def merge_counts(self, other: _Agg, scale: float = 1.0) -> None:
+        """Add the category totals and the single-largest figures of ``other``."""
+        for k, v in other.by_cat.items():
+            self.by_cat[k] = self.by_cat.get(k, 0.0) + v * scale
+        for k, v in other.cont_by_cat.items():
+            self.cont_by_cat[k] = self.cont_by_cat.get(k, 0.0) + v * scale
+        self.kitchen_units += other.kitchen_units
+        top = sorted((*self.kitchen_top2, *other.kitchen_top2), reverse=True)
+        self.kitchen_top2 = (top[0], top[1])
+        if other.largest_motor > self.largest_motor:
+            self.largest_motor = other.largest_motor
+        if other.largest_cooling > self.largest_cooling:
+            self.largest_cooling = other.largest_cooling
+        self.p_w += other.p_w * scale
+        self.q_var += other.q_var * scale
+
+    def add_same(self, other: _Agg) -> None:
+        """Add a child on the same system, phase for phase."""
+        self.merge_counts(other)
+        for p, v in other.phase_va.items():
+            self.phase_va[p] += v
+        for p, i in other.line_i.items():
+            self.line_i[p] += i
+        for p, v in other.line_i3.items():
+            self.line_i3[p] += v
+        self.neutral_i3 += other.neutral_i3
+        self.h3_ln_va += other.h3_ln_va
+        self.h3_va += other.h3_va
+
+    def pf(self) -> float:
+        s = math.hypot(self.p_w, self.q_var)
+        return self.p_w / s if s > 0 else 1.0
+
+    def demand_input(self) -> _demand.DemandInput:
+        return _demand.DemandInput(
+            connected_by_category=dict(self.by_cat),
+            continuous_by_category=dict(self.cont_by_cat),
+            kitchen_units=self.kitchen_units,
+            kitchen_two_largest_va=self.kitchen_top2,
+            largest_motor_va=self.largest_motor,
+            largest_cooling_va=self.largest_cooling,
+        )
+
+
+# --------------------------------------------------------------------------- nodes
+
+
+@dataclass(frozen=True)
+class _WindingSpec(SystemSpec):
+    """The single-phase connection of a single-phase transformer's primary (e.g. 480 V line to
+    line on a 480Y/277 system), used to size and check its primary feeder as a 2-wire circuit."""
+
+    nominal: float = 0.0
+
+    def nominal_v_ll(self) -> float:
+        return self.nominal
+
+
+def _winding_spec(volts_nominal: float, volts: float) -> _WindingSpec:
+    return _WindingSpec(
+        name=f"{volts_nominal:g} V single-phase winding",
+        kind=SystemKind.SINGLE,
+        v_ln=volts,
+        v_ll=volts,
+        phases=("A",),
+        wires=2,
+        nominal=volts_nominal,
+    )
+
+
+class _Node:
+    """One source, transformer or panel of the tree, with its cached aggregates and results."""
+
+    __slots__ = (
+        "kind",
+        "tag",
+        "element",
+        "spec",
+        "parent",
+        "children",
+        "via",
+        "primary",
+        "primary_phases",
+        "pole_phases",
+        "v_pri_winding",
+        "own",
+        "own_circuits",
+        "own_warnings",
+        "spaces_used",
+        "total",
+        "up",
+        "local",
+        "z_bus",
+        "final",
+        "final_key",
+    )
+
+    def __init__(self, kind: str, element: Source | Transformer | Panel, spec: SystemSpec) -> None:
+        self.kind = kind
+        self.tag = element.tag
+        self.element = element
+        self.spec = spec
+        self.parent: _Node | None = None
+        self.children: list[_Node] = []
+        self.via: Circuit | None = None  # the feeding breaker on the parent panel
+        self.primary: SystemSpec | None = None
+        self.primary_phases: tuple[str, ...] = ()
+        self.pole_phases: tuple[str, ...] = ()
+        self.v_pri_winding = 0.0
+        self.own: _Agg | None = None
+        self.own_circuits: list[CircuitResult] = []
+        self.own_warnings: list[CalcWarning] = []
+        self.spaces_used = 0
+        self.total: _Agg | None = None
+        self.up: _Agg | None = None
+        self.local: _Local | None = None
+        self.z_bus = 0j
+        self.final: object | None = None
+        self.final_key: tuple | None = None
+
+
+@dataclass(frozen=True)
+class _Local:
+    """What a node's subtree alone decides (before the top-down pass)."""
+
+    result: PanelResult | TransformerResult | SourceResult
+    feeder: FeederResult | None  # cumulative drop still = own drop
+    warnings: tuple[CalcWarning, ...]  # excluding the top-down ones
+
+
+# --------------------------------------------------------------------------- own circuits
+
+
+def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
+    """Step 1 for a panel: its own (non-feeding) circuits."""
+    panel: Panel = node.element  # type: ignore[assignment]
+    spec = node.spec
+    agg = _Agg(spec.phases)
+    results: list[CircuitResult] = []
+    warnings: list[CalcWarning] = []
+    used = 0
+    spare_breakers = 0
+    phase_va = agg.phase_va
+    line_i = agg.line_i
+    line_i3 = agg.line_i3
+    by_cat = agg.by_cat
+    cont_by_cat = agg.cont_by_cat
+    for c in panel.circuits:
+        poles = c.poles
+        if poles == 0:
+            continue
+        used += poles
+        if c.feeds is not None:
+            continue
+        slot = c.slot
+        cat = c.category
+        if cat is _SPARE:
+            spare_breakers += 1
+        va = c.va or 0.0
+        shares = phase_shares(spec, slot, poles)
+        amps = load_amps(spec, poles, va)
+        counted = c.counts(include_future)
+        results.append(
+            CircuitResult(
+                slot=slot,
+                slots=breaker_slots(slot, poles),
+                phases=tuple(p for p, _ in shares),
+                phase_va={p: va * s for p, s in shares},
+                amps=amps,
+                counted=counted,
+                load_va=va,
+            )
+        )
+        if c.breaker_amps is not None and va > 0 and c.status is not Status.REMOVED:
+            cont = c.effective_continuous
+            need = amps * (CONTINUOUS_FACTOR if cont else 1.0)
+            if c.breaker_amps < need - 1e-9:
+                what = "125 % of its continuous load" if cont else "its load"
+                warnings.append(
+                    CalcWarning(
+                        WarningCode.BREAKER_UNDERSIZED,
+                        f"{panel.tag} slot {slot}: {c.breaker_amps} A breaker is below {what} "
+                        f"({need:.1f} A) ({code_label} 210.20(A))",
+                        panel.tag,
+                        slot,
+                        Severity.ERROR,
+                    )
+                )
+        if not counted or va <= 0.0:
+            continue
+        catv = cat.value if cat is not None else "equipment"
+        by_cat[catv] = by_cat.get(catv, 0.0) + va
+        if c.effective_continuous:
+            cont_by_cat[catv] = cont_by_cat.get(catv, 0.0) + va
+        if catv == _KITCHEN:
+            agg.add_kitchen(va)
+        elif catv == _MOTOR:
+            if va > agg.largest_motor:
+                agg.largest_motor = va
+        elif catv == _COOLING and va > agg.largest_cooling:
+            agg.largest_cooling = va
+        for p, s in shares:
+            phase_va[p] += va * s
+        pf = c.effective_pf
+        s_conj = conj_power(va, pf)
+        agg.p_w += s_conj.real
+        agg.q_var -= s_conj.imag
+        for p, k in current_coefficients(spec, slot, poles):
+            line_i[p] += s_conj * k
+        h3 = c.harmonic3_pct
+        if h3 > 0.0:
+            i3 = amps * h3 / 100.0
+            agg.h3_va += va * h3 / 100.0
+            if poles == 1:
+                p = shares[0][0]
+                line_i3[p] += i3
+                agg.neutral_i3 += i3 * triplen_rotation(spec, p)
+                agg.h3_ln_va += va
+            elif poles == 2:
+                # Line-to-line: the triplen current flows out one line and back the other.
+                for p, _ in shares:
+                    line_i3[p] += i3
+            # 3-pole: balanced triplens are zero sequence with no return path in a 3-wire load.
+    free = panel.spaces - used
+    if free <= 0 and spare_breakers == 0:
+        warnings.append(
+            CalcWarning(
+                WarningCode.SPACES_EXHAUSTED,
+                f"{panel.tag}: all {panel.spaces} spaces are used and no spare breaker is left",
+                panel.tag,
+                None,
+                Severity.NOTE,
+            )
+        )
+    node.own = agg
+    node.own_circuits = results
+    node.own_warnings = warnings
+    node.spaces_used = used
+
+
+# --------------------------------------------------------------------------- the engine
+
+
+class Calculator:
+    """Full and incremental calculation of one project (see the module docstring)."""
+
+    def __init__(self, project: Project, *, include_future: bool | None = None) -> None:
+        self._include_future_opt = include_future
+        self._build(project)
+
+    # ---- construction
+
+    def _build(self, project: Project) -> None:
+        self.project = project
+        info = project.project
+        self.include_future = info.include_future if self._include_future_opt is None else self._include_future_opt
+        self.code = info.code
+        self.nodes: dict[str, _Node] = {}
+        self.roots: list[_Node] = []
+        for s in project.sources:
+            self.nodes[s.tag] = _Node("source", s, SYSTEMS[s.system])
+        for t in project.transformers:
+            n = _Node("transformer", t, SYSTEMS[t.secondary])
+            n.primary = SYSTEMS[t.primary]
+            self.nodes[t.tag] = n
+        for p in project.panels:
+            self.nodes[p.tag] = _Node("panel", p, SYSTEMS[p.system])
+        fed_by: dict[str, tuple[str, Circuit]] = {}
+        for p in project.panels:
+            for c in p.circuits:
+                if c.feeds is not None and c.poles > 0:
+                    fed_by[c.feeds] = (p.tag, c)
+        for element in (*project.transformers, *project.panels):
+            node = self.nodes[element.tag]
+            via = fed_by.get(element.tag)
+            if via is not None:
+                parent = self.nodes[via[0]]
+                node.via = via[1]
+            elif element.fed_from is not None and element.fed_from in self.nodes:
+                parent = self.nodes[element.fed_from]
+            else:
+                raise ProjectFileError([Problem("is not fed from anything", element.tag, field="fed_from")])
+            node.parent = parent
+            parent.children.append(node)
+        for s in project.sources:
+            self.roots.append(self.nodes[s.tag])
+        self.order: list[_Node] = []  # parents before children
+        stack = list(reversed(self.roots))
+        while stack:
+            n = stack.pop()
+            self.order.append(n)
+            stack.extend(reversed(n.children))
+        if len(self.order) != len(self.nodes):
+            missing = sorted(set(self.nodes) - {n.tag for n in self.order})
+            raise ProjectFileError([Problem("is not connected to any source (feed loop?)", t) for t in missing])
+        for n in self.order:
+            if n.kind == "transformer":
+                self._wire_transformer(n)
+        code_label = self.code.value
+        for n in self.order:
+            if n.kind == "panel":
+                _own_circuits(n, self.include_future, code_label)
+        for n in reversed(self.order):
+            self._aggregate(n)
+            self._local(n)
+        self._top_down()
+        self._assemble()
+
+    def _wire_transformer(self, node: _Node) -> None:
+        parent = node.parent
+        assert parent is not None and node.primary is not None
+        sec = node.spec
+        if sec.three_phase:
+            node.primary_phases = parent.spec.phases
+            node.pole_phases = (
+                breaker_phases(parent.spec, node.via.slot, node.via.poles) if node.via else parent.spec.phases
+            )
+            node.v_pri_winding = node.primary.nominal_v_ll()
+            return
+        if node.via is not None:
+            phases = breaker_phases(parent.spec, node.via.slot, node.via.poles)
+        else:
+            phases = parent.spec.phases[:2]
+        node.primary_phases = phases
+        node.pole_phases = phases
+        if len(phases) >= 2:
+            node.v_pri_winding = parent.spec.nominal_v_ll()
+        else:
+            node.v_pri_winding = parent.spec.v_ln or parent.spec.nominal_v_ll()
+
+    # ---- step 2: roll-up
+
+    def _aggregate(self, node: _Node) -> None:
+        agg = _Agg(node.spec.phases)
+        if node.own is not None:
+            agg.add_same(node.own)
+        for child in node.children:
+            if child.via is not None and not child.via.counts(self.include_future):
+                continue
+            assert child.up is not None
+            agg.add_same(child.up)
+        node.total = agg
+        node.up = self._present_to_parent(node) if node.parent is not None else None
+
+    def _present_to_parent(self, node: _Node) -> _Agg:
+        total = node.total
+        assert total is not None
+        if node.kind == "panel":
+            return total  # same system, phase for phase
+        t: Transformer = node.element  # type: ignore[assignment]
+        parent_spec = node.parent.spec  # type: ignore[union-attr]
+        pri = node.primary
+        assert pri is not None
+        k = 1.0 + t.loss_pct / 100.0
+        up = _Agg(parent_spec.phases)
+        up.merge_counts(total, k)
+        share = total.total_va() * k / len(node.pole_phases)
+        for p in node.pole_phases:
+            up.phase_va[p] += share
+        rot = orientation(parent_spec) * orientation(pri).conjugate()
+        for p, i in reflect_through_transformer(node.spec, pri, total.line_i, node.primary_phases).items():
+            up.line_i[p] += i * k * rot
+        i3, n3 = reflect_triplens(node.spec, pri, total.line_i3, total.neutral_i3, node.primary_phases)
+        for p, v in i3.items():
+            up.line_i3[p] += v * k
+        up.neutral_i3 = n3 * k * rot**3
+        if triplens_pass(node.spec, pri):
+            up.h3_va = total.h3_va * k
+            if _primary_neutral(node):
+                up.h3_ln_va = total.h3_ln_va * k
+        return up
+
+    # ---- step 3: local results
+
+    def _demand(self, agg: _Agg) -> _demand.DemandResult:
+        return _demand.apply_demand(agg.demand_input(), code=self.code, occupancy=self.project.project.occupancy)
+
+    def _currents(self, spec: SystemSpec, agg: _Agg, dem: _demand.DemandResult):
+        total_va = agg.total_va()
+        line_amps = {p: abs(i) for p, i in agg.line_i.items()}
+        line_rms = {p: math.hypot(line_amps[p], agg.line_i3.get(p, 0.0)) for p in line_amps}
+        neutral = neutral_current(sum(agg.line_i.values(), 0j), agg.neutral_i3) if spec.has_neutral else None
+        max_amps = max(line_amps.values()) if line_amps else 0.0
+        design_va = dem.demand_va + 0.25 * dem.continuous_demand_va
+        if total_va > 0.0:
+            design_amps = max_amps * design_va / total_va
+            demand_amps = max_amps * dem.demand_va / total_va
+        else:
+            design_amps = demand_amps = 0.0
+        return total_va, line_amps, line_rms, neutral, design_amps, demand_amps
+
+    def _feeder(
+        self,
+        *,
+        tag: str,
+        feeder,
+        system: SystemSpec,
+        design_amps: float,
+        load_amps: float,
+        pf: float,
+        neutral_amps: float | None,
+        harmonic_dominant: bool,
+        breaker_amps: int | None,
+    ) -> tuple[FeederResult | None, list[CalcWarning]]:
+        info = self.project.project
+        try:
+            fd = _feeders.design_feeder(
+                tag=tag,
+                feeder=feeder,
+                system=system,
+                design_amps=design_amps,
+                load_amps=load_amps,
+                pf=pf,
+                neutral_amps=neutral_amps,
+                harmonic_dominant=harmonic_dominant,
+                breaker_amps=breaker_amps,
+                vd_limit_pct=info.vd_feeder_pct,
+                upstream_vd_pct=0.0,
+                vd_total_limit_pct=info.vd_total_pct,
+                code=self.code,
+            )
+        except SizingError as exc:
+            return None, [CalcWarning(WarningCode.NO_SIZE, f"{tag} feeder: {exc}", tag, None, Severity.ERROR)]
+        # The total drop depends on everything upstream: the top-down pass decides it.
+        warnings = [w for w in fd.warnings if w.code != WarningCode.VOLTAGE_DROP_TOTAL]
+        result = fd.result
+        if result.ampacity_amps + 1e-9 < design_amps and not any(
+            w.code == WarningCode.FEEDER_AMPACITY and w.severity != Severity.NOTE for w in warnings
+        ):
+            warnings.append(
+                CalcWarning(
+                    WarningCode.FEEDER_AMPACITY,
+                    f"{tag} feeder: ampacity {result.ampacity_amps:.0f} A is below the design current "
+                    f"{design_amps:.1f} A",
+                    tag,
+                    None,
+                    Severity.ERROR,
+                )
+            )
+        return result, warnings
+
+    def _local(self, node: _Node) -> None:
+        if node.kind == "panel":
+            node.local = self._local_panel(node)
+        elif node.kind == "transformer":
+            node.local = self._local_transformer(node)
+        else:
+            node.local = self._local_source(node)
+
+    def _local_panel(self, node: _Node) -> _Local:
+        panel: Panel = node.element  # type: ignore[assignment]
+        spec = node.spec
+        agg = node.total
+        assert agg is not None
+        info = self.project.project
+        dem = self._demand(agg)
+        total_va, line_amps, line_rms, neutral, design_amps, demand_amps = self._currents(spec, agg, dem)
+        harmonic_dominant = spec.kind == SystemKind.WYE and agg.h3_ln_va > HARMONIC_DOMINANT_SHARE * total_va > 0
+        feeder, fwarn = self._feeder(
+            tag=panel.tag,
+            feeder=panel.feeder,
+            system=spec,
+            design_amps=design_amps,
+            load_amps=demand_amps,
+            pf=agg.pf(),
+            neutral_amps=neutral,
+            harmonic_dominant=harmonic_dominant,
+            breaker_amps=node.via.breaker_amps if node.via is not None else None,
+        )
+        warnings = list(node.own_warnings) + fwarn
+        tag = panel.tag
+        if design_amps > panel.bus_amps + 1e-9:
+            warnings.append(
+                CalcWarning(
+                    WarningCode.BUS_OVERLOAD,
+                    f"{tag}: design current {design_amps:.1f} A exceeds the {panel.bus_amps} A bus",
+                    tag,
+                    None,
+                    Severity.ERROR,
+                )
+            )
+        if panel.main_amps is not None and design_amps > panel.main_amps + 1e-9:
+            warnings.append(
+                CalcWarning(
+                    WarningCode.MAIN_OVERLOAD,
+                    f"{tag}: design current {design_amps:.1f} A exceeds the {panel.main_amps} A main breaker",
+                    tag,
+                    None,
+                    Severity.ERROR,
+                )
+            )
+        imbalance = imbalance_pct(agg.phase_va)
+        if imbalance > info.imbalance_limit_pct:
+            phases = ", ".join(f"{p} {v:,.0f} VA" for p, v in agg.phase_va.items())
+            warnings.append(
+                CalcWarning(
+                    WarningCode.IMBALANCE,
+                    f"{tag}: phase imbalance {imbalance:.1f} % is over the project limit of "
+                    f"{info.imbalance_limit_pct:g} % ({phases})",
+                    tag,
+                )
+            )
+        if (
+            neutral is not None
+            and feeder is not None
+            and not any(w.code == WarningCode.NEUTRAL_OVERLOAD for w in warnings)
+        ):
+            n_amp = self._neutral_ampacity(feeder)
+            if n_amp is not None and neutral > n_amp + 1e-9:
+                warnings.append(
+                    CalcWarning(
+                        WarningCode.NEUTRAL_OVERLOAD,
+                        f"{tag}: neutral current {neutral:.1f} A exceeds the ampacity of the "
+                        f"{feeder.neutral} neutral ({n_amp:.0f} A)",
+                        tag,
+                        None,
+                        Severity.ERROR,
+                    )
+                )
+        if spec.kind == SystemKind.HIGH_LEG and node.own is not None:
+            ln_va = sum(v for c, v in self._ln_va(panel))
+            if total_va > 0 and ln_va > HIGH_LEG_LN_SHARE * total_va:
+                warnings.append(
+                    CalcWarning(
+                        WarningCode.HIGH_LEG,
+                        f"{tag}: {100 * ln_va / total_va:.0f} % of the connected load is 120 V line-to-neutral, "
+                        "all of it on the centre-tapped A–C winding; check that winding's rating or use a "
+                        "208Y/120 V system",
+                        tag,
+                    )
+                )
+        capacity = float(min(panel.bus_amps, panel.main_amps or panel.bus_amps))
+        circuits = self._circuit_results(node)
+        result = PanelResult(
+            tag=tag,
+            system=panel.system,
+            connected_va=dict(agg.phase_va),
+            connected_va_total=total_va,
+            connected_by_category=dict(agg.by_cat),
+            demand_va=dem.demand_va,
+            demand_steps=dem.steps,
+            continuous_demand_va=dem.continuous_demand_va,
+            largest_motor_va=dem.largest_motor_va,
+            line_amps=line_amps,
+            line_amps_rms=line_rms,
+            neutral_amps=neutral,
+            imbalance_pct=imbalance,
+            design_amps=design_amps,
+            feeder=feeder,
+            fault_ka=None,
+            fault_x_over_r=None,
+            capacity_amps=capacity,
+            capacity_pct=100.0 * design_amps / capacity,
+            spaces_total=panel.spaces,
+            spaces_used=node.spaces_used,
+            circuits=circuits,
+            warnings=(),
+            fed_from=node.parent.tag if node.parent else None,
+            ancestors=self._ancestors(node),
+        )
+        return _Local(result, feeder, tuple(warnings))
+
+    def _ln_va(self, panel: Panel) -> Iterable[tuple[Circuit, float]]:
+        for c in panel.circuits:
+            if c.poles == 1 and c.feeds is None and c.counts(self.include_future):
+                yield c, c.va or 0.0
+
+    def _neutral_ampacity(self, feeder: FeederResult) -> float | None:
+        if feeder.neutral is None:
+            return None
+        if feeder.neutral == feeder.conductor:
+            return feeder.ampacity_amps
+        # A different neutral size: same derating and terminal limit as the phase conductors.
+        try:
+            phase = _feeders.conductor_ampacity(feeder.conductor, feeder.material, 75)
+            neutral = _feeders.conductor_ampacity(feeder.neutral, feeder.material, 75)
+        except (KeyError, ValueError):
+            return None
+        return feeder.ampacity_amps * neutral / phase if phase else None
+
+    def _circuit_results(self, node: _Node) -> tuple[CircuitResult, ...]:
+        """Own circuits plus the feeding breakers, which carry their child's presented load."""
+        feeds = [c for c in node.element.circuits if c.feeds is not None and c.poles > 0]  # type: ignore[union-attr]
+        if not feeds:
+            return tuple(node.own_circuits)
+        by_tag = {ch.tag: ch for ch in node.children}
+        extra: list[CircuitResult] = []
+        for c in feeds:
+            child = by_tag[c.feeds]  # type: ignore[index]
+            up = child.up
+            assert up is not None
+            phases = breaker_phases(node.spec, c.slot, c.poles)
+            extra.append(
+                CircuitResult(
+                    slot=c.slot,
+                    slots=breaker_slots(c.slot, c.poles),
+                    phases=phases,
+                    phase_va={p: up.phase_va.get(p, 0.0) for p in phases},
+                    amps=max((abs(up.line_i.get(p, 0j)) for p in phases), default=0.0),
+                    counted=c.counts(self.include_future),
+                    load_va=up.total_va(),
+                )
+            )
+        return tuple(sorted([*node.own_circuits, *extra], key=lambda r: r.slot))
+
+    def _ancestors(self, node: _Node) -> tuple[str, ...]:
+        out = []
+        p = node.parent
+        while p is not None:
+            out.append(p.tag)
+            p = p.parent
+        return tuple(out)
+
+    def _local_transformer(self, node: _Node) -> _Local:
+        t: Transformer = node.element  # type: ignore[assignment]
+        sec = node.spec
+        pri = node.primary
+        parent = node.parent
+        assert pri is not None and parent is not None and node.total is not None and node.up is not None
+        agg = node.total
+        dem = self._demand(agg)
+        k = 1.0 + t.loss_pct / 100.0
+        total_va, sec_amps, _rms, _neutral, _design, _dem_amps = self._currents(sec, agg, dem)
+        load_kva = dem.demand_va * k / 1000.0
+        three = sec.three_phase
+        fla_pri = _xf.full_load_amps(t.kva, node.v_pri_winding, three)
+        fla_sec = _xf.full_load_amps(t.kva, sec.nominal_v_ll(), three)
+        warnings: list[CalcWarning] = []
+        try:
+            suggested = _xf.suggest_kva(load_kva, self.project.project.growth_margin_pct, three)
+        except SizingError as exc:
+            suggested = 0.0
+            warnings.append(CalcWarning(WarningCode.NO_SIZE, f"{t.tag}: {exc}", t.tag, None, Severity.ERROR))
+        prot = _xf.protection_450_3b(fla_pri, fla_sec)
+        fraction = agg.h3_va / total_va if total_va > 0 else 0.0
+        try:
+            k_suggested = _xf.suggest_k_rating(_xf.k_factor(fraction))
+        except SizingError as exc:
+            k_suggested = None
+            warnings.append(CalcWarning(WarningCode.NO_SIZE, f"{t.tag}: {exc}", t.tag, None, Severity.WARNING))
+        loading = 100.0 * load_kva / t.kva
+        if loading > 100.0 + 1e-9:
+            warnings.append(
+                CalcWarning(
+                    WarningCode.TRANSFORMER_OVERLOAD,
+                    f"{t.tag}: demand load {load_kva:.1f} kVA is {loading:.0f} % of its {t.kva:g} kVA rating",
+                    t.tag,
+                    None,
+                    Severity.ERROR,
+                )
+            )
+        # Primary feeder: sized for 125 % of the rated primary current (so the largest
+        # NEC 450.3(B) primary-only device protects it) or the load's design current if larger.
+        up = node.up
+        pri_amps = {p: abs(up.line_i[p]) for p in node.primary_phases}
+        pri_max = max(pri_amps.values()) if pri_amps else 0.0
+        up_total = up.total_va()
+        if up_total > 0:
+            design_va = dem.demand_va + 0.25 * dem.continuous_demand_va
+            load_design = pri_max * design_va / total_va
+            load_amps = pri_max * dem.demand_va / total_va
+        else:
+            load_design = load_amps = 0.0
+        if three:
+            f_system = pri
+        else:
+            v = node.v_pri_winding
+            f_system = _winding_spec(v, v)
+        neutral = neutral_current(sum(up.line_i.values(), 0j), up.neutral_i3) if _primary_neutral(node) else None
+        feeder, fwarn = self._feeder(
+            tag=t.tag,
+            feeder=t.feeder,
+            system=f_system,
+            design_amps=max(CONTINUOUS_FACTOR * fla_pri, load_design),
+            load_amps=load_amps,
+            pf=up.pf(),
+            neutral_amps=neutral,
+            harmonic_dominant=False,
+            breaker_amps=node.via.breaker_amps if node.via is not None else None,
+        )
+        warnings.extend(fwarn)
+        result = TransformerResult(
+            tag=t.tag,
+            kva=t.kva,
+            primary=t.primary,
+            secondary=t.secondary,
+            load_kva=load_kva,
+            connected_kva=total_va * k / 1000.0,
+            loading_pct=loading,
+            fla_primary=fla_pri,
+            fla_secondary=fla_sec,
+            primary_line_amps=pri_amps,
+            secondary_line_amps=sec_amps,
+            secondary_fault_ka=None,
+            suggested_kva=suggested,
+            primary_ocpd_amps=prot.primary_only_amps,
+            secondary_ocpd_amps=prot.secondary_amps,
+            primary_ocpd_with_secondary_amps=prot.primary_with_secondary_amps,
+            k_factor_suggested=k_suggested,
+            feeder=feeder,
+            warnings=(),
+            fed_from=parent.tag,
+            ancestors=self._ancestors(node),
+        )
+        return _Local(result, feeder, tuple(warnings))
+
+    def _local_source(self, node: _Node) -> _Local:
+        s: Source = node.element  # type: ignore[assignment]
+        agg = node.total
+        assert agg is not None
+        dem = self._demand(agg)
+        total_va, line_amps, _rms, _n, design_amps, _d = self._currents(node.spec, agg, dem)
+        result = SourceResult(
+            tag=s.tag,
+            system=s.system,
+            connected_va=total_va,
+            demand_va=dem.demand_va,
+            demand_steps=dem.steps,
+            design_amps=design_amps,
+            line_amps=line_amps,
+            fault_ka=s.fault_ka,
+        )
+        return _Local(result, None, ())
+
+    # ---- step 4: top-down pass
+
+    def _top_down(self) -> None:
+        info = self.project.project
+        limit = info.vd_total_pct
+        cum: dict[str, float] = {}
+        for node in self.order:
+            local = node.local
+            assert local is not None
+            if node.kind == "source":
+                s: Source = node.element  # type: ignore[assignment]
+                spec = node.spec
+                v = spec.nominal_v_ll() if spec.three_phase else spec.nominal_v_ll() * SQRT3
+                # Single-phase source: the loop impedance V/I_sc (source_impedance divides by √3).
+                node.z_bus = _faults.source_impedance(v, s.fault_ka, s.x_over_r)
+                cum[node.tag] = 0.0
+                if node.final_key is None or node.final_key[0] is not local:
+                    node.final = local.result
+                    node.final_key = (local,)
+                continue
+            parent = node.parent
+            assert parent is not None
+            upstream = cum[parent.tag]
+            feeder = local.feeder
+            own_vd = feeder.voltage_drop_pct if feeder is not None else 0.0
+            total_vd = upstream + own_vd
+            cum[node.tag] = total_vd
+            z_feeder = self._feeder_z(feeder) if feeder is not None else 0j
+            if node.kind == "panel":
+                loop = 1.0 if node.spec.three_phase else 2.0
+                node.z_bus = parent.z_bus + loop * z_feeder
+            else:
+                node.z_bus = self._secondary_z(node, parent.z_bus, z_feeder)
+            fault = _faults.bolted_fault_ka(node.z_bus, node.spec)
+            fault_ka = None if math.isinf(fault) else fault
+            prev = node.final_key
+            if prev is not None and prev[0] is local and prev[1] == total_vd and prev[2] == fault_ka:
+                continue
+            node.final_key = (local, total_vd, fault_ka)
+            extra: list[CalcWarning] = []
+            tag = node.tag
+            if feeder is not None and total_vd > limit + 1e-9:
+                extra.append(
+                    CalcWarning(
+                        WarningCode.VOLTAGE_DROP_TOTAL,
+                        f"{tag}: cumulative voltage drop {total_vd:.2f} % from the source exceeds {limit:g} % "
+                        f"(NEC 210.19(A) / 215.2(A) Informational Notes)",
+                        tag,
+                    )
+                )
+            new_feeder = replace(feeder, cumulative_voltage_drop_pct=total_vd) if feeder is not None else None
+            if node.kind == "panel":
+                panel: Panel = node.element  # type: ignore[assignment]
+                if panel.sccr_ka is not None and fault_ka is not None and fault_ka > panel.sccr_ka + 1e-9:
+                    extra.append(
+                        CalcWarning(
+                            WarningCode.SCCR_LOW,
+                            f"{tag}: available fault current {fault_ka:.1f} kA exceeds the panel's "
+                            f"{panel.sccr_ka:g} kA short-circuit current rating ({self.code.value} 110.9 / 110.10)",
+                            tag,
+                            None,
+                            Severity.ERROR,
+                        )
+                    )
+                node.final = replace(
+                    local.result,
+                    feeder=new_feeder,
+                    fault_ka=fault_ka,
+                    fault_x_over_r=_faults.x_over_r(node.z_bus),
+                    warnings=sort_warnings([*local.warnings, *extra]),
+                )
+            else:
+                node.final = replace(
+                    local.result,
+                    feeder=new_feeder,
+                    secondary_fault_ka=fault_ka,
+                    warnings=sort_warnings([*local.warnings, *extra]),
+                )
+
+    def _feeder_z(self, feeder: FeederResult) -> complex:
+        if feeder.length_ft <= 0:
+            return 0j
+        return _vd.feeder_impedance_ohm(
+            feeder.conductor, feeder.material, feeder.conduit, feeder.length_ft, feeder.sets
+        )
+
+    def _secondary_z(self, node: _Node, z_parent: complex, z_feeder: complex) -> complex:
+        """Impedance at a transformer's secondary terminals, referred to the secondary (ohms).
+
+        Three-phase: per-phase (source + primary feeder referred by (V_sec/V_pri)²) + Z_T.
+        Single-phase: the fault loop of :func:`server.calc.faults.single_phase_loop_impedance`;
+        the upstream per-phase impedance is the parent bus (per phase when the parent is
+        three-phase, already a loop when it is single-phase: then halved) plus the primary
+        feeder's one-way impedance.
+        """
+        t: Transformer = node.element  # type: ignore[assignment]
+        sec = node.spec
+        parent = node.parent
+        assert parent is not None
+        v_sec = sec.nominal_v_ll()
+        z_t = _faults.transformer_impedance(t.kva, t.impedance_pct, t.x_over_r, v_sec, sec.three_phase)
+        per_phase_parent = z_parent if parent.spec.three_phase else z_parent / 2.0
+        z_up = _faults.refer_impedance(per_phase_parent + z_feeder, node.v_pri_winding, v_sec)
+        if sec.three_phase:
+            return z_up + z_t
+        return _faults.single_phase_loop_impedance(z_t, z_up)
+
+    # ---- assembly
+
+    def _assemble(self) -> None:
+        panels: dict[str, PanelResult] = {}
+        transformers: dict[str, TransformerResult] = {}
+        sources: dict[str, SourceResult] = {}
+        warnings: list[CalcWarning] = []
+        for p in self.project.panels:
+            r = self.nodes[p.tag].final
+            panels[p.tag] = r  # type: ignore[assignment]
+            warnings.extend(r.warnings)  # type: ignore[union-attr]
+        for t in self.project.transformers:
+            r = self.nodes[t.tag].final
+            transformers[t.tag] = r  # type: ignore[assignment]
+            warnings.extend(r.warnings)  # type: ignore[union-attr]
+        for s in self.project.sources:
+            sources[s.tag] = self.nodes[s.tag].final  # type: ignore[assignment]
+        self._result = ProjectResult(
+            code=self.code.value,
+            include_future=self.include_future,
+            panels=panels,
+            transformers=transformers,
+            sources=sources,
+            warnings=sort_warnings(warnings),
+        )
+
+    # ---- public API
+
+    def result(self) -> ProjectResult:
+        return self._result
+
+    def update_panel(self, panel: Panel) -> ProjectResult:
+        """Replace one panel (same tag) and recompute incrementally; identical to a full compute.
+
+        The panel is checked first (:func:`server.calc.projectfile.check_panel`); a change in
+        what it feeds, its system or its status of feeding breakers changes the tree, and then
+        the whole project is rebuilt (after the topology check).
+        """
+        node = self.nodes.get(panel.tag)
+        if node is None or node.kind != "panel":
+            raise ProjectFileError([Problem("is not a panel of this project", panel.tag)])
+        problems: list[Problem] = []
+        check_panel(panel, problems)
+        if problems:
+            raise ProjectFileError(problems)
+        old: Panel = node.element  # type: ignore[assignment]
+        new_project = replace_panel(self.project, panel)
+        if _tree_signature(old) != _tree_signature(panel) or old.fed_from != panel.fed_from:
+            check_topology(new_project, problems)
+            if problems:
+                raise ProjectFileError(problems)
+            self._build(new_project)
+            return self._result
+        self.project = new_project
+        node.element = panel
+        _own_circuits(node, self.include_future, self.code.value)
+        # The feeding breakers' ratings may have changed: their children's feeders follow.
+        by_slot = {c.feeds: c for c in panel.circuits if c.feeds is not None and c.poles > 0}
+        for child in node.children:
+            new_via = by_slot[child.tag]
+            if new_via != child.via:
+                child.via = new_via
+                self._local(child)
+        n: _Node | None = node
+        while n is not None:
+            self._aggregate(n)
+            self._local(n)
+            n = n.parent
+        self._top_down()
+        self._assemble()
+        return self._result
+
+
+def _primary_neutral(node: _Node) -> bool:
+    """Whether a transformer's primary current returns on the feeding system's neutral: a grounded
+    wye–wye bank, or a single-phase transformer connected line to neutral."""
+    parent = node.parent
+    if parent is None or not parent.spec.has_neutral or node.primary is None:
+        return False
+    if node.spec.three_phase:
+        return winding_connection(node.primary) == "wye" and winding_connection(node.spec) == "wye"
+    return len(node.primary_phases) == 1
+
+
+def _tree_signature(panel: Panel) -> tuple:
+    """What of a panel shapes the tree: its system and the breakers that feed something."""
+    return (
+        panel.system,
+        tuple((c.slot, c.poles, c.feeds, c.status) for c in panel.circuits if c.feeds is not None),
+    )
+
+
+def compute_project(project: Project, *, include_future: bool | None = None) -> ProjectResult:
+    """Full calculation of a project (see the module docstring)."""
+    return Calculator(project, include_future=include_future).result()
