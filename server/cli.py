@@ -16,7 +16,7 @@ import click
 from server import __version__
 
 #: Sub-command modules, in the order ``--help`` lists them.
-COMMAND_MODULES: tuple[str, ...] = ("calc",)
+COMMAND_MODULES: tuple[str, ...] = ("calc", "sheets", "pdf")
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -31,7 +31,8 @@ def cli() -> None:
 
 for _name in COMMAND_MODULES:
     _module = importlib.import_module(f"server.commands.{_name}")
-    cli.add_command(_module.command)
+    for _command in getattr(_module, "commands", None) or [_module.command]:  # a module may expose several
+        cli.add_command(_command)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -1,0 +1,603 @@
+"""Turning a mapped sheet into circuits, with every problem pinned to its row and cell.
+
+Each data row becomes a raw circuit dict in the version-1 project-file shape and goes through
+the engine's own rules: :func:`server.calc.projectfile.parse_circuit` for the row,
+:func:`~server.calc.projectfile.check_panel` and
+:func:`~server.calc.projectfile.check_topology` for the panel and project.  This module only
+adds what is particular to spreadsheets: reading slot and breaker notations ("1,3,5",
+"1-3-5", "20/1"), converting a kVA or amps column to VA, mapping category words, comparing a
+phase column with the slot, and skipping blank, repeated-header and totals rows.
+
+Nothing is written here: :class:`ImportPreview` is shown to the user, and only
+:meth:`ImportPreview.circuits_by_panel` of a preview without errors is handed to the store.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field, replace
+from enum import StrEnum
+
+from server.calc.errors import Problem
+from server.calc.model import Category, Circuit, Panel, Project
+from server.calc.projectfile import check_panel, check_topology, parse_circuit
+from server.calc.systems import SQRT3, SYSTEMS, SystemSpec, breaker_phases
+
+from .mapping import LOAD_ROLES, ColumnMap, Role, normalise, to_number
+from .reader import CellValue, Grid
+
+
+class Severity(StrEnum):
+    ERROR = "error"  # blocks the commit
+    WARNING = "warning"  # shown; the row is stored as the preview says
+
+
+@dataclass(frozen=True)
+class CellProblem:
+    """A problem of one row, pinned to a column when one column is to blame."""
+
+    message: str
+    column: int | None = None  # 0-based sheet column; None = the row as a whole
+    field: str = ""  # circuit field (slot, poles, va ...)
+    severity: Severity = Severity.ERROR
+
+
+@dataclass(frozen=True)
+class PreviewRow:
+    """One sheet row as it will be stored (or why it will not be)."""
+
+    sheet: str
+    sheet_row: int  # 1-based row number as the spreadsheet program shows it
+    cells: tuple[str, ...]  # the cell texts as read
+    panel: str | None = None
+    circuit: Circuit | None = None
+    phases: tuple[str, ...] = ()
+    problems: tuple[CellProblem, ...] = ()
+    ignored: str = ""  # why the row is not imported ("blank row", "totals row" ...)
+
+    @property
+    def has_error(self) -> bool:
+        return any(p.severity == Severity.ERROR for p in self.problems)
+
+    def problems_at(self, column: int) -> tuple[CellProblem, ...]:
+        return tuple(p for p in self.problems if p.column == column)
+
+    def row_problems(self) -> tuple[CellProblem, ...]:
+        return tuple(p for p in self.problems if p.column is None)
+
+
+@dataclass(frozen=True)
+class SheetPlan:
+    """Which sheet goes to which panel, read with which mapping."""
+
+    sheet: str
+    mapping: ColumnMap
+    panel: str | None = None  # None: the sheet has a Panel column naming each row's panel
+
+
+@dataclass(frozen=True)
+class ImportPreview:
+    """The whole import as it would be stored; commit only when :attr:`can_commit`."""
+
+    source: str
+    plans: tuple[SheetPlan, ...]
+    rows: tuple[PreviewRow, ...]
+    circuits: dict[str, tuple[Circuit, ...]] = field(default_factory=dict)  # by panel tag
+    problems: tuple[str, ...] = ()  # problems of the import as a whole (no rows, unknown panel ...)
+
+    @property
+    def error_count(self) -> int:
+        return len(self.problems) + sum(1 for r in self.rows for p in r.problems if p.severity == Severity.ERROR)
+
+    @property
+    def warning_count(self) -> int:
+        return sum(1 for r in self.rows for p in r.problems if p.severity == Severity.WARNING)
+
+    @property
+    def can_commit(self) -> bool:
+        return self.error_count == 0 and bool(self.circuits)
+
+    def imported_rows(self) -> list[PreviewRow]:
+        return [r for r in self.rows if r.circuit is not None]
+
+    def circuits_by_panel(self) -> dict[str, tuple[Circuit, ...]]:
+        if not self.can_commit:
+            raise ValueError("an import with errors cannot be committed")
+        return dict(self.circuits)
+
+    def problem_lines(self, limit: int | None = None) -> list[str]:
+        """Every problem as one line naming file, sheet, row, panel, slot and column."""
+        lines = [f"{self.source}: {p}" for p in self.problems]
+        for r in self.rows:
+            for p in r.problems:
+                where = [f"{self.source}", f"sheet {r.sheet!r}", f"row {r.sheet_row}"]
+                if r.panel:
+                    where.append(f"panel {r.panel}")
+                if r.circuit is not None:
+                    where.append(f"slot {r.circuit.slot}")
+                if p.field:
+                    where.append(p.field)
+                lines.append(f"{p.severity.value}: " + ", ".join(where) + f": {p.message}")
+        return lines[:limit] if limit else lines
+
+
+# --------------------------------------------------------------------------- cell readers
+
+_CATEGORY_WORDS: tuple[tuple[str, Category], ...] = (
+    (r"^(ltg|lts|light|lighting|lights|lighting general|general lighting|l)$", Category.LIGHTING),
+    (r"^(rec|recep|recept|receptacles?|rcpt|outlets?|r|gp receptacles?)$", Category.RECEPTACLE),
+    (r"^(mot|mtr|motors?|m|pump|pumps|fan|fans)$", Category.MOTOR),
+    (r"^(hvac|ac|a c|cooling|cool|rtu|chiller|condenser|air conditioning|compressor)$", Category.COOLING),
+    (r"^(heat|heating|htg|heater|heaters|electric heat|baseboard)$", Category.HEATING),
+    (r"^(kit|kitchen|kitchen equipment|cooking|kitchen equip)$", Category.KITCHEN),
+    (r"^(ev|evse|ev charging|ev charger|ev chargers|car charger)$", Category.EV_CHARGING),
+    (r"^(eq|equip|equipment|misc|miscellaneous|other|process)$", Category.EQUIPMENT),
+    (r"^(spare|spares|spr)$", Category.SPARE),
+)
+_CATEGORY_RE = tuple((re.compile(p), c) for p, c in _CATEGORY_WORDS)
+
+_TOTAL_RE = re.compile(r"\b(total|totals|subtotal|sub total|sum|connected load|demand load|demand|grand)\b")
+
+
+def _text(v: CellValue) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, float) and v.is_integer():
+        return str(int(v))
+    return str(v).strip()
+
+
+def category_of(text: str) -> Category | None:
+    t = normalise(text).replace("_", " ")
+    try:
+        return Category(t.replace(" ", "_"))
+    except ValueError:
+        pass
+    for pattern, cat in _CATEGORY_RE:
+        if pattern.match(t):
+            return cat
+    return None
+
+
+def parse_slot(value: CellValue) -> tuple[int, int | None] | str:
+    """(slot, poles from the notation or None) or an error message.
+
+    "7" → (7, None); "1,3,5", "1-3-5", "1/3/5" → (1, 3); "2-4" → (2, 2); a range "1-5" → (1, 3).
+    """
+    if isinstance(value, bool):
+        return f"{value!r} is not a slot number"
+    if isinstance(value, (int, float)):
+        if not math.isfinite(value) or value != int(value):
+            return f"{_text(value)!r} is not a whole slot number"
+        return int(value), None
+    text = str(value).strip()
+    numbers = [int(n) for n in re.findall(r"\d+", text)]
+    if not numbers or re.search(r"[^\d\s,;/&+\-]", re.sub(r"(?i)^(ckt|cct|slot|no\.?|#)\s*", "", text)):
+        return f"{text!r} is not a slot number (write 7, or 1,3,5 for a 3-pole breaker)"
+    if len(numbers) == 1:
+        return numbers[0], None
+    first = numbers[0]
+    if all(b - a == 2 for a, b in zip(numbers, numbers[1:], strict=False)) and len(numbers) <= 3:
+        return first, len(numbers)
+    if len(numbers) == 2 and numbers[1] - first == 4 and "-" in text:
+        return first, 3  # a range 1-5 covers 1, 3, 5
+    return (
+        f"{text!r} is not the slots of one breaker: a breaker of P poles at slot s takes s, s+2, s+4 "
+        "(e.g. 1,3,5 or 2-4)"
+    )
+
+
+def parse_breaker(value: CellValue) -> tuple[int | None, int | None] | str:
+    """(trip amps, poles) from 20, "20A", "20/1", "20A/2P", "2P-30A"; or an error message."""
+    if isinstance(value, bool):
+        return f"{value!r} is not a breaker rating"
+    if isinstance(value, (int, float)):
+        if value != int(value) or value <= 0:
+            return f"{_text(value)!r} is not a breaker trip rating in whole amps"
+        return int(value), None
+    text = str(value).strip().lower()
+    tokens = re.findall(r"(\d+(?:\.\d+)?)\s*(amps?|a|poles?|pole|p)?\b", text)
+    if not tokens or re.search(r"[^\d\s./\-,xapmoles]", text):
+        return f"{str(value)!r} is not a breaker rating (write 20, 20A, or 20/1 for amps/poles)"
+    amps: float | None = None
+    poles: float | None = None
+    bare: list[float] = []
+    for number, unit in tokens:
+        n = float(number)
+        if unit.startswith("p"):
+            poles = n
+        elif unit.startswith("a"):
+            amps = n
+        else:
+            bare.append(n)
+    for n in bare:
+        if amps is None and (poles is not None or n > 3 or len(bare) == 1):
+            amps = n
+        elif poles is None:
+            poles = n
+        elif amps is None:
+            amps = n
+    if len(bare) == 2 and amps is not None and poles is not None and amps <= 3 < poles:
+        amps, poles = poles, amps  # "1/20": poles/amps written the other way round
+    if amps is not None and amps != int(amps):
+        return f"{str(value)!r}: breaker trip must be whole amps"
+    if poles is not None and (poles != int(poles) or not 1 <= poles <= 3):
+        return f"{str(value)!r}: a breaker has 1, 2 or 3 poles"
+    return (int(amps) if amps is not None else None), (int(poles) if poles is not None else None)
+
+
+def parse_poles(value: CellValue) -> int | str:
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        if value == int(value) and 0 <= value <= 3:
+            return int(value)
+        return f"{_text(value)!r} is not a number of poles (0 for a space, 1, 2 or 3)"
+    m = re.fullmatch(r"\s*(\d)\s*(p|pole|poles|-pole|ph)?\s*", str(value).lower())
+    if m and int(m.group(1)) <= 3:
+        return int(m.group(1))
+    return f"{str(value)!r} is not a number of poles (0 for a space, 1, 2 or 3)"
+
+
+def parse_phases(value: CellValue) -> tuple[str, ...] | None:
+    letters = re.sub(r"[^ABC]", "", _text(value).upper())
+    if not letters or re.search(r"[^ABC\s,/\-Ø&+]", _text(value).upper().replace("PH", "")):
+        return None
+    return tuple(sorted(set(letters)))
+
+
+def amps_to_va(amps: float, poles: int, spec: SystemSpec) -> float | str:
+    """Load current to VA from the panel voltage.
+
+    Formula (common practice, nominal voltages from the system string, ANSI C84.1):
+    1-pole: VA = I × V_LN; 2-pole: VA = I × V_LL; 3-pole: VA = √3 × V_LL × I.
+    """
+    v_ll = spec.nominal_v_ll()
+    if poles <= 1:
+        if spec.v_ln is None:
+            return f"a 1-pole load current cannot be converted on {spec.name}: it has no neutral"
+        return amps * spec.v_ln
+    if poles == 2:
+        return amps * v_ll
+    return amps * SQRT3 * v_ll
+
+
+# --------------------------------------------------------------------------- rows
+
+
+_FIELD_OF_ROLE: dict[Role, str] = {
+    Role.SLOT: "slot",
+    Role.DESCRIPTION: "description",
+    Role.LOAD_VA: "va",
+    Role.LOAD_KVA: "va",
+    Role.LOAD_AMPS: "va",
+    Role.POLES: "poles",
+    Role.BREAKER: "breaker_amps",
+    Role.CATEGORY: "category",
+    Role.NOTES: "notes",
+    Role.STATUS: "status",
+    Role.PF: "pf",
+    Role.CONTINUOUS: "continuous",
+    Role.FEEDS: "feeds",
+    Role.LOCKED: "locked",
+    Role.HARMONIC: "harmonic3_pct",
+}
+_PASSTHROUGH = (Role.PF, Role.CONTINUOUS, Role.FEEDS, Role.LOCKED, Role.HARMONIC)
+
+
+@dataclass
+class _RowWork:
+    raw: dict[str, object]
+    problems: list[CellProblem]
+    columns: dict[str, int]  # circuit field -> column the value came from
+    load: tuple[float, Role, int] | None = None  # value, unit role, column
+    phase_cell: tuple[tuple[str, ...] | None, int] | None = None
+
+
+def _column_roles(cmap: ColumnMap) -> list[tuple[int, Role]]:
+    return [(i, r) for i, r in enumerate(cmap.roles) if r != Role.IGNORE]
+
+
+def _read_row(values: Sequence[CellValue], formulas: set[int], cols: list[tuple[int, Role]]) -> _RowWork:
+    w = _RowWork(raw={}, problems=[], columns={})
+    slot_poles: int | None = None
+    breaker_poles: int | None = None
+    poles_col: int | None = None
+    for c, role in cols:
+        v = values[c] if c < len(values) else None
+        if c in formulas:
+            w.problems.append(
+                CellProblem(
+                    f"holds a formula ({_text(v)[:60]}); formulas are never evaluated: type the value",
+                    c,
+                    _FIELD_OF_ROLE.get(role, role.value),
+                )
+            )
+            continue
+        if v is None or v == "":
+            continue
+        if role == Role.SLOT:
+            got = parse_slot(v)
+            if isinstance(got, str):
+                w.problems.append(CellProblem(got, c, "slot"))
+            else:
+                w.raw["slot"], slot_poles = got
+            w.columns["slot"] = c
+        elif role == Role.POLES:
+            p = parse_poles(v)
+            if isinstance(p, str):
+                w.problems.append(CellProblem(p, c, "poles"))
+            else:
+                w.raw["poles"], poles_col = p, c
+        elif role == Role.BREAKER:
+            got_b = parse_breaker(v)
+            if isinstance(got_b, str):
+                w.problems.append(CellProblem(got_b, c, "breaker_amps"))
+            else:
+                amps, breaker_poles = got_b
+                if amps is not None:
+                    w.raw["breaker_amps"] = amps
+            w.columns["breaker_amps"] = c
+        elif role in LOAD_ROLES:
+            n = to_number(v)
+            if n is None:
+                w.problems.append(CellProblem(f"{_text(v)!r} is not a number", c, "va"))
+            else:
+                w.load = (n, role, c)
+            w.columns["va"] = c
+        elif role == Role.PHASE:
+            w.phase_cell = (parse_phases(v), c)
+        elif role == Role.DESCRIPTION:
+            w.raw["description"] = _text(v)
+            w.columns["description"] = c
+        elif role == Role.NOTES:
+            w.raw["notes"] = _text(v)
+            w.columns["notes"] = c
+        elif role == Role.CATEGORY:
+            text = _text(v)
+            cat = category_of(text)
+            if cat is None:
+                w.problems.append(
+                    CellProblem(f"unknown category {text!r}; stored as 'equipment'", c, "category", Severity.WARNING)
+                )
+                cat = Category.EQUIPMENT
+            w.raw["category"] = cat.value
+            w.columns["category"] = c
+        elif role == Role.STATUS:
+            w.raw["status"] = normalise(_text(v))
+            w.columns["status"] = c
+        elif role in _PASSTHROUGH:
+            fieldname = _FIELD_OF_ROLE[role]
+            w.raw[fieldname] = v if not isinstance(v, str) else v.strip()
+            w.columns[fieldname] = c
+    # poles: a Poles column wins; otherwise the breaker notation, otherwise the slot notation
+    given = [
+        (p, col, what)
+        for p, col, what in (
+            (w.raw.get("poles"), poles_col, "the poles column"),
+            (breaker_poles, w.columns.get("breaker_amps"), "the breaker notation"),
+            (slot_poles, w.columns.get("slot"), "the slot notation"),
+        )
+        if p is not None
+    ]
+    if given:
+        poles, col, what = given[0]
+        w.raw["poles"] = poles
+        w.columns["poles"] = col if col is not None else -1
+        for other, ocol, owhat in given[1:]:
+            if other != poles:
+                w.problems.append(CellProblem(f"{owhat} says {other} poles but {what} says {poles}", ocol, "poles"))
+    return w
+
+
+def _is_blank(values: Sequence[CellValue]) -> bool:
+    return all(v is None or (isinstance(v, str) and not v.strip()) for v in values)
+
+
+def _row_texts(values: Sequence[CellValue], width: int) -> tuple[str, ...]:
+    return tuple(_text(values[c]) if c < len(values) else "" for c in range(width))
+
+
+def build_preview(
+    source: str,
+    grids: dict[str, Grid],
+    plans: Sequence[SheetPlan],
+    project: Project,
+) -> ImportPreview:
+    """Read every planned sheet, validate through the engine, and return what would be stored."""
+    top: list[str] = []
+    rows: list[PreviewRow] = []
+    by_panel: dict[str, list[tuple[int, Circuit]]] = {}
+    claimed: dict[str, str] = {}
+    for plan in plans:
+        grid = grids[plan.sheet]
+        if plan.panel is not None:
+            if project.panel(plan.panel) is None:
+                top.append(f"panel {plan.panel!r} is not in project {project.project.number or project.project.name}")
+                continue
+            if plan.panel in claimed:
+                top.append(
+                    f"panel {plan.panel} is imported from two sheets ({claimed[plan.panel]!r} and {plan.sheet!r})"
+                )
+                continue
+            claimed[plan.panel] = plan.sheet
+        elif plan.mapping.column(Role.PANEL) is None:
+            top.append(f"sheet {plan.sheet!r}: choose a panel, or map a column to 'panel'")
+            continue
+        if plan.mapping.column(Role.SLOT) is None:
+            top.append(f"sheet {plan.sheet!r}: no column is mapped to 'slot'; every circuit needs its slot number")
+            continue
+        rows.extend(_sheet_rows(grid, plan, project, by_panel, len(rows)))
+    # Engine checks per panel and for the project, on the panels as they would be stored.
+    new_panels: dict[str, Panel] = {}
+    for tag, items in by_panel.items():
+        panel = project.panel(tag)
+        assert panel is not None  # rows for unknown panels never reach by_panel
+        circuits = tuple(sorted((c for _, c in items), key=lambda c: c.slot))
+        new_panels[tag] = replace(panel, circuits=circuits)
+    if new_panels:
+        _attach_engine_problems(project, new_panels, by_panel, rows, plans)
+    if not rows and not top:
+        top.append("no circuit rows were found below the header row")
+    elif not by_panel and not top:
+        top.append("no row holds a circuit (every row is blank, a header, a total or an empty slot)")
+    circuits = {tag: p.circuits for tag, p in new_panels.items()}
+    return ImportPreview(source=source, plans=tuple(plans), rows=tuple(rows), circuits=circuits, problems=tuple(top))
+
+
+def _sheet_rows(
+    grid: Grid,
+    plan: SheetPlan,
+    project: Project,
+    by_panel: dict[str, list[tuple[int, Circuit]]],
+    offset: int,
+) -> Iterable[PreviewRow]:
+    cmap = plan.mapping
+    cols = _column_roles(cmap)
+    slot_col = cmap.column(Role.SLOT)
+    panel_col = cmap.column(Role.PANEL)
+    width = max(grid.width, len(cmap.roles))
+    header_key = tuple(normalise(h) for h in cmap.headers)
+    formulas_by_row: dict[int, set[int]] = {}
+    for r, c in grid.formulas:
+        formulas_by_row.setdefault(r, set()).add(c)
+    ended: str = ""
+    out: list[PreviewRow] = []
+    for r in range(cmap.header_row + 1, len(grid.rows)):
+        values = grid.rows[r]
+        texts = _row_texts(values, width)
+        base = PreviewRow(sheet=plan.sheet, sheet_row=r + 1, cells=texts)
+        if ended:
+            if not _is_blank(values):
+                out.append(replace(base, ignored=ended))
+            continue
+        if _is_blank(values):
+            continue  # blank rows are layout, not data
+        if tuple(normalise(t) for t in texts[: len(header_key)]) == header_key:
+            out.append(replace(base, ignored="repeated header row"))
+            continue
+        slot_value = values[slot_col] if slot_col is not None and slot_col < len(values) else None
+        if slot_value is None or slot_value == "":
+            joined = normalise(" ".join(texts))
+            if _TOTAL_RE.search(joined):
+                ended = "below the totals row"
+                out.append(replace(base, ignored="totals row (not a circuit)"))
+                continue
+        w = _read_row(values, formulas_by_row.get(r, set()), cols)
+        # the panel of the row
+        tag = plan.panel
+        if tag is None and panel_col is not None:
+            tag = _text(values[panel_col]) if panel_col < len(values) else ""
+            if not tag:
+                w.problems.append(CellProblem("no panel tag", panel_col, "panel"))
+            elif project.panel(tag) is None:
+                w.problems.append(CellProblem(f"panel {tag!r} is not in this project", panel_col, "panel"))
+                tag = None
+        base = replace(base, panel=tag)
+        if "slot" not in w.raw:
+            if not any(k in w.raw for k in ("description", "breaker_amps", "category")) and w.load is None:
+                out.append(replace(base, ignored="no slot and no circuit data", problems=tuple(w.problems)))
+            else:
+                w.problems.append(CellProblem("no slot number; every circuit needs one", slot_col, "slot"))
+                out.append(replace(base, problems=tuple(w.problems)))
+            continue
+        described = any(k in w.raw for k in ("description", "breaker_amps", "category", "poles", "feeds"))
+        if not described and w.load is None and not w.problems:
+            out.append(replace(base, ignored="empty slot"))
+            continue
+        desc = str(w.raw.get("description", ""))
+        if normalise(desc) in ("space", "spc") and "poles" not in w.raw:
+            w.raw["poles"] = 0
+        if normalise(desc) in ("spare", "spr") and "category" not in w.raw:
+            w.raw["category"] = Category.SPARE.value
+        panel = project.panel(tag) if tag else None
+        spec = SYSTEMS.get(panel.system) if panel else None
+        poles_for_load = int(w.raw.get("poles", 1) or 1)
+        if w.load is not None:
+            value, unit, col = w.load
+            if unit == Role.LOAD_KVA:
+                w.raw["va"] = round(value * 1000.0, 6)
+            elif unit == Role.LOAD_AMPS:
+                if spec is not None:
+                    va = amps_to_va(value, poles_for_load, spec)
+                    if isinstance(va, str):
+                        w.problems.append(CellProblem(va, col, "va"))
+                    else:
+                        w.raw["va"] = round(va, 3)
+            else:
+                w.raw["va"] = value
+        engine: list[Problem] = []
+        circuit = parse_circuit(w.raw, engine, tag=tag or "?", index=offset + len(out))
+        for p in engine:
+            col = w.columns.get(p.field or "")
+            w.problems.append(CellProblem(p.message, col if col is not None and col >= 0 else None, p.field or ""))
+        phases: tuple[str, ...] = ()
+        if circuit is not None and spec is not None and not circuit.is_space and circuit.poles <= len(spec.phases):
+            phases = breaker_phases(spec, circuit.slot, circuit.poles)
+            if w.phase_cell is not None:
+                said, col = w.phase_cell
+                if said is None:
+                    w.problems.append(
+                        CellProblem("the phase column is not A, B, C or a mix of them", col, "phase", Severity.WARNING)
+                    )
+                elif said != tuple(sorted(set(phases))):
+                    w.problems.append(
+                        CellProblem(
+                            f"the phase column says {''.join(said)}, but slot {circuit.slot} "
+                            f"({circuit.poles}-pole) is on {''.join(phases)} on {spec.name}; the slot decides",
+                            col,
+                            "phase",
+                            Severity.WARNING,
+                        )
+                    )
+        row = replace(base, circuit=circuit, phases=phases, problems=tuple(w.problems))
+        if circuit is not None and tag is not None and panel is not None:
+            by_panel.setdefault(tag, []).append((offset + len(out), circuit))
+        out.append(row)
+    return out
+
+
+def _attach_engine_problems(
+    project: Project,
+    new_panels: dict[str, Panel],
+    by_panel: dict[str, list[tuple[int, Circuit]]],
+    rows: list[PreviewRow],
+    plans: Sequence[SheetPlan],
+) -> None:
+    """Run the engine's panel and project checks; pin each new problem to the rows of its slot."""
+    found: list[Problem] = []
+    for panel in new_panels.values():
+        check_panel(panel, found)
+    before: list[Problem] = []
+    check_topology(project, before)
+    after_project = replace(project, panels=tuple(new_panels.get(p.tag, p) for p in project.panels))
+    after: list[Problem] = []
+    check_topology(after_project, after)
+    known = {p.describe() for p in before}
+    found.extend(p for p in after if p.describe() not in known)
+    slot_rows: dict[tuple[str, int], list[int]] = {}
+    for tag, items in by_panel.items():
+        for index, c in items:
+            slot_rows.setdefault((tag, c.slot), []).append(index)
+    maps = {plan.sheet: plan.mapping for plan in plans}
+    for p in found:
+        targets = slot_rows.get((p.tag or "", p.slot), []) if p.slot is not None else []
+        if not targets and p.tag in by_panel:
+            # a panel-wide problem: pin it to the panel's first row so it is seen beside the data
+            targets = [by_panel[p.tag][0][0]]
+        for index in targets[-1:] if "overlap" in p.message else targets:
+            row = rows[index]
+            col = field_column(maps[row.sheet], p.field or "")
+            rows[index] = replace(row, problems=row.problems + (CellProblem(p.message, col, p.field or ""),))
+
+
+def field_column(cmap: ColumnMap, fieldname: str) -> int | None:
+    """The column a circuit field is read from (poles may come from the breaker or slot notation)."""
+    order = [r for r, f in _FIELD_OF_ROLE.items() if f == fieldname]
+    if fieldname == "poles":
+        order += [Role.BREAKER, Role.SLOT]
+    for role in order:
+        col = cmap.column(role)
+        if col is not None:
+            return col
+    return None

@@ -1,0 +1,100 @@
+"""Export: XLSX layout, round trips through the importer, CSV escaping."""
+
+from __future__ import annotations
+
+import io
+from dataclasses import replace
+
+import openpyxl
+
+from server.calc.engine import compute_project
+from server.calc.model import Category, Circuit, Status
+from server.calc.projectfile import load_project_file, replace_panel
+from server.sheets import plan_sheets, preview_upload, read_upload
+from server.sheets.export import CAUTION, CIRCUIT_HEADERS, circuits_csv, project_xlsx, summary_csv
+from tests.helpers import DEMO_FILE
+
+
+def _demo():
+    return load_project_file(DEMO_FILE)
+
+
+def _leaf_panel(project):
+    """A panel that feeds nothing (so its circuits can be replaced freely), with a neutral."""
+    return next(p for p in project.panels if not any(c.feeds for c in p.circuits) and "Y/" in p.system)
+
+
+def test_xlsx_round_trip_gives_the_same_circuits():
+    project = _demo()
+    data = project_xlsx(project, compute_project(project))
+    book = read_upload(data, "demo.xlsx")
+    preview = preview_upload(book, plan_sheets(book, project), project)
+    assert preview.can_commit, preview.problem_lines()
+    assert set(preview.circuits) == {p.tag for p in project.panels}
+    for panel in project.panels:
+        assert preview.circuits[panel.tag] == panel.circuits, panel.tag
+
+
+def test_round_trip_keeps_awkward_text_and_every_field():
+    project = _demo()
+    lp = _leaf_panel(project)
+    odd = (
+        Circuit(
+            1,
+            1,
+            "=cmd|' /C calc'!A0",
+            Category.RECEPTACLE,
+            180.0,
+            0.95,
+            True,
+            20,
+            Status.EXISTING,
+            15.0,
+            notes="<script>alert(1)</script>",
+        ),
+        Circuit(3, 0, "", notes="'quoted"),
+        Circuit(5, 1, "-5 dB fan", Category.MOTOR, 333.3, None, False, 15, Status.FUTURE, locked=True),
+    )
+    lp = replace(lp, circuits=odd)
+    project = replace_panel(project, lp)
+    for data, name in ((project_xlsx(project, compute_project(project)), "p.xlsx"), (circuits_csv(project), "p.csv")):
+        book = read_upload(data, name)
+        preview = preview_upload(book, plan_sheets(book, project), project)
+        got = preview.circuits[lp.tag]
+        assert got == lp.circuits, name
+
+
+def test_xlsx_layout_header_frozen_units_and_summary_from_results():
+    project = _demo()
+    result = compute_project(project)
+    wb = openpyxl.load_workbook(io.BytesIO(project_xlsx(project, result)))
+    assert wb.sheetnames == ["Summary", *[p.tag for p in project.panels]]
+    first = wb[project.panels[0].tag]
+    assert first.freeze_panes == "A2"
+    assert tuple(c.value for c in first[1]) == CIRCUIT_HEADERS
+    assert first["A1"].font.bold
+    summary = wb["Summary"]
+    assert summary["A3"].value == CAUTION
+    # the panels table: find the row of the first panel and check a value against the engine
+    values = {row[0]: row for row in summary.iter_rows(values_only=True) if row and row[0]}
+    tag = project.panels[0].tag
+    assert values[tag][6] == round(result.panels[tag].demand_va / 1000.0, 2)
+    t = project.transformers[0].tag
+    assert values[t][6] == round(result.transformers[t].loading_pct, 1)
+    # text that looks like a formula was written as text
+    for ws in wb.worksheets:
+        for row in ws.iter_rows():
+            for cell in row:
+                assert cell.data_type != "f"
+
+
+def test_csv_escapes_formula_text_and_summary_has_caution():
+    project = _demo()
+    lp = _leaf_panel(project)
+    lp = replace(lp, circuits=(Circuit(1, 1, '=HYPERLINK("x")', va=10.0),))
+    project = replace_panel(project, lp)
+    text = circuits_csv(project).decode("utf-8-sig")
+    assert "'=HYPERLINK" in text
+    summary = summary_csv(project, compute_project(project)).decode("utf-8-sig")
+    assert summary.splitlines()[0].startswith("Panel,System,Fed from")
+    assert CAUTION in summary
