@@ -1,0 +1,233 @@
+"""Rendering the set: Jinja (templates/pdf/) → HTML → WeasyPrint PDF per sheet → pypdf merge.
+
+* Every sheet is its own HTML document and its own PDF, so sheets render in parallel
+  (``concurrent.futures.ProcessPoolExecutor``, one sheet per task) and are cached one by one.
+* Cache key: sha256 of the template version (the renderer version, every file of
+  ``templates/pdf/`` and the WeasyPrint version) and the sheet's rendered HTML.  Re-issuing after
+  one edit re-renders only the sheets whose HTML changed (the edited panel, the panels and
+  sheets whose printed values changed with it, and the index); the rest come from the cache.
+* The shared stylesheet is parsed once per process and passed to WeasyPrint, not inlined.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import multiprocessing
+import os
+import tempfile
+import threading
+import time
+from collections.abc import Callable, Sequence
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+
+import jinja2
+
+from server.formatting import register_filters
+
+from .sheets import PAPERS, SheetSpec
+
+RENDERER_VERSION = "1"
+ROOT = Path(__file__).resolve().parent.parent.parent
+TEMPLATES_DIR = ROOT / "templates"
+PDF_TEMPLATES = TEMPLATES_DIR / "pdf"
+STYLESHEET = PDF_TEMPLATES / "sheet.css"
+CACHE_ENV = "PANELWRIGHT_PDF_CACHE_DIR"
+DEFAULT_CACHE_DIR = Path("var") / "pdf-cache"
+
+#: Below this many sheets to render, starting worker processes costs more than it saves.
+POOL_THRESHOLD = 6
+
+Progress = Callable[[int, int], None]  # (sheets done, sheets total)
+
+
+@lru_cache(maxsize=1)
+def template_version() -> str:
+    """Hash of everything besides the HTML that shapes a sheet's PDF."""
+    import weasyprint
+
+    h = hashlib.sha256(f"panelwright-pdf {RENDERER_VERSION} weasyprint {weasyprint.__version__}\n".encode())
+    for path in sorted(PDF_TEMPLATES.rglob("*")):
+        if path.is_file():
+            h.update(path.relative_to(PDF_TEMPLATES).as_posix().encode() + b"\0")
+            h.update(path.read_bytes())
+    return h.hexdigest()
+
+
+@lru_cache(maxsize=1)
+def environment() -> jinja2.Environment:
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(TEMPLATES_DIR)),
+        autoescape=True,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        undefined=jinja2.StrictUndefined,
+        auto_reload=False,
+    )
+    register_filters(env)
+    return env
+
+
+def sheet_html(spec: SheetSpec, paper_name: str) -> str:
+    """The HTML of one sheet (formatting only: every number comes from the context)."""
+    ctx = spec.context
+    return (
+        environment()
+        .get_template(spec.template)
+        .render(s=ctx, tb=ctx.title, paper=PAPERS[paper_name], rev=getattr(ctx, "delta_rev", None))
+    )
+
+
+def cache_key(html: str) -> str:
+    return hashlib.sha256(template_version().encode() + b"\0" + html.encode("utf-8")).hexdigest()
+
+
+class SheetCache:
+    """Rendered sheet PDFs on disk, one file per content hash (written atomically)."""
+
+    def __init__(self, directory: str | os.PathLike[str]) -> None:
+        self.directory = Path(directory)
+
+    def _path(self, key: str) -> Path:
+        return self.directory / key[:2] / f"{key}.pdf"
+
+    def get(self, key: str) -> bytes | None:
+        try:
+            return self._path(key).read_bytes()
+        except OSError:
+            return None
+
+    def put(self, key: str, pdf: bytes) -> None:
+        path = self._path(key)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(dir=path.parent, suffix=".tmp")
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(pdf)
+        os.replace(tmp, path)
+
+
+def default_cache_dir(*, cli: bool = False) -> Path:
+    """PANELWRIGHT_PDF_CACHE_DIR, else ./var/pdf-cache (server) or a per-user temp dir (CLI)."""
+    value = os.environ.get(CACHE_ENV)
+    if value:
+        return Path(value)
+    if cli:
+        return Path(tempfile.gettempdir()) / f"panelwright-pdf-cache-{os.getuid() if hasattr(os, 'getuid') else 0}"
+    return DEFAULT_CACHE_DIR
+
+
+@lru_cache(maxsize=1)
+def _stylesheet():  # type: ignore[no-untyped-def]
+    from weasyprint import CSS
+
+    return CSS(filename=str(STYLESHEET))
+
+
+def html_to_pdf(html: str) -> bytes:
+    """One sheet's HTML → PDF bytes (runs in a worker process or in-process)."""
+    from weasyprint import HTML
+
+    return HTML(string=html, base_url=str(PDF_TEMPLATES)).write_pdf(stylesheets=[_stylesheet()])
+
+
+def _warm() -> None:
+    _stylesheet()
+
+
+def _mp_context() -> multiprocessing.context.BaseContext:
+    """fork from a single-threaded process (the CLI: workers start at once, modules loaded);
+    forkserver from a threaded one (the web server), where forking a thread holding a lock
+    could hang the child.  The forkserver preloads this module so workers start warm."""
+    if threading.active_count() == 1 and "fork" in multiprocessing.get_all_start_methods():
+        return multiprocessing.get_context("fork")
+    ctx = multiprocessing.get_context("forkserver")
+    ctx.set_forkserver_preload(["server.pdf.render"])
+    return ctx
+
+
+@dataclass
+class RenderStats:
+    sheets: int = 0
+    rendered: int = 0
+    from_cache: int = 0
+    workers: int = 1
+    html_s: float = 0.0
+    render_s: float = 0.0
+    merge_s: float = 0.0
+
+
+def render_pdfs(
+    htmls: Sequence[str],
+    *,
+    cache: SheetCache | None,
+    workers: int | None = None,
+    progress: Progress | None = None,
+    stats: RenderStats | None = None,
+) -> list[bytes]:
+    """PDF bytes of each HTML, from the cache or rendered (in parallel when worth it)."""
+    stats = stats if stats is not None else RenderStats()
+    t0 = time.perf_counter()
+    total = len(htmls)
+    out: list[bytes | None] = [None] * total
+    keys = [cache_key(h) for h in htmls]
+    todo: list[int] = []
+    done = 0
+    for i, key in enumerate(keys):
+        hit = cache.get(key) if cache is not None else None
+        if hit is not None:
+            out[i] = hit
+            done += 1
+        else:
+            todo.append(i)
+    stats.sheets, stats.from_cache = total, done
+    if progress:
+        progress(done, total)
+    n_workers = max(1, workers if workers is not None else (os.cpu_count() or 1))
+    n_workers = min(n_workers, max(1, len(todo)))
+    stats.workers = n_workers if len(todo) >= POOL_THRESHOLD else 1
+
+    def finish(i: int, pdf: bytes) -> None:
+        nonlocal done
+        out[i] = pdf
+        if cache is not None:
+            cache.put(keys[i], pdf)
+        done += 1
+        if progress:
+            progress(done, total)
+
+    if stats.workers <= 1:
+        for i in todo:
+            finish(i, html_to_pdf(htmls[i]))
+    else:
+        try:
+            with ProcessPoolExecutor(max_workers=n_workers, mp_context=_mp_context(), initializer=_warm) as pool:
+                futures = {pool.submit(html_to_pdf, htmls[i]): i for i in todo}
+                for fut in as_completed(futures):
+                    finish(futures[fut], fut.result())
+        except BrokenProcessPool:
+            # A worker died (out of memory, killed): finish what is left here rather than fail the set.
+            stats.workers = 1
+            for i in todo:
+                if out[i] is None:
+                    finish(i, html_to_pdf(htmls[i]))
+    stats.rendered = len(todo)
+    stats.render_s = time.perf_counter() - t0
+    return [b for b in out if b is not None]
+
+
+def merge_pdfs(pdfs: Sequence[bytes], titles: Sequence[str]) -> bytes:
+    """One PDF of every sheet in order, with an outline entry per sheet."""
+    from pypdf import PdfReader, PdfWriter
+
+    writer = PdfWriter()
+    for pdf, title in zip(pdfs, titles, strict=True):
+        start = len(writer.pages)
+        writer.append(PdfReader(io.BytesIO(pdf)), import_outline=False)
+        writer.add_outline_item(title, start)
+    buf = io.BytesIO()
+    writer.write(buf)
+    return buf.getvalue()
