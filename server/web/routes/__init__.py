@@ -1,0 +1,1 @@
+"""One router per resource: projects, tree, panels, transformers, warnings, api (and bench when enabled)."""
