@@ -246,6 +246,7 @@ def design_feeder(
     vd_total_limit_pct: float,
     code: CodeEdition,
     max_parallel_size: str = "500",
+    has_neutral: bool | None = None,
 ) -> FeederDesign:
     """Choose (or check) the feeder of ``tag``; see the module docstring for the rules.
 
@@ -253,7 +254,8 @@ def design_feeder(
     standard rating ≥ design_amps (240.6(A)).  Conductor: the given size (checked, never
     replaced) or the smallest (sets, size) whose ampacity covers the design current and is
     protected by the OCPD, then upsized until the voltage drop at ``load_amps`` and ``pf``
-    is within ``vd_limit_pct``.  Never raises for a size it cannot find: it reports
+    is within ``vd_limit_pct``.  ``has_neutral`` overrides ``system.has_neutral`` (e.g. False for
+    the two line conductors feeding a single-phase transformer connected line to line).  Never raises for a size it cannot find: it reports
     ``no-standard-size`` instead.
     """
     code = CodeEdition(code)
@@ -430,7 +432,7 @@ def design_feeder(
 
     # Neutral.
     neutral: str | None = None
-    if system.has_neutral:
+    if system.has_neutral if has_neutral is None else has_neutral:
         if feeder.neutral_size is not None:
             neutral = str(feeder.neutral_size)
             reasons.append(f"neutral {neutral} given")

@@ -319,6 +319,29 @@ def test_neutral_rules() -> None:
     assert WarningCode.NEUTRAL_OVERLOAD in _codes(d)  # 8 AWG Cu 50 A < 90 A
 
 
+def test_has_neutral_override() -> None:
+    # A single-phase transformer primary connected line to line has two line conductors and no neutral.
+    line_to_line = SYSTEMS["277 1PH 2W"]
+    assert _design(30.0, system=line_to_line).result.neutral == "10"
+    d = design_feeder(
+        tag="T-3",
+        feeder=Feeder(),
+        system=line_to_line,
+        design_amps=30.0,
+        load_amps=30.0,
+        pf=1.0,
+        neutral_amps=None,
+        harmonic_dominant=False,
+        breaker_amps=None,
+        vd_limit_pct=3.0,
+        upstream_vd_pct=0.0,
+        vd_total_limit_pct=5.0,
+        code=NEC23,
+        has_neutral=False,
+    )
+    assert d.result.neutral is None and d.result.conductor == "10"
+
+
 def test_split_phase_two_current_carrying() -> None:
     d = _design(100.0, system=SPLIT, harmonic=True)
     assert d.result.current_carrying == 2
