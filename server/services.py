@@ -34,7 +34,10 @@ from server.calc.errors import Problem, ProjectFileError
 from server.calc.model import FORMAT_NAME, FORMAT_VERSION, Circuit, Feeder, Panel, Project, ProjectInfo, Source
 from server.calc.model import Transformer as TransformerModel
 from server.calc.results import ProjectResult
+from server.config import Settings
 from server.db import models as db
+from server.db.migrate import ensure_migrated
+from server.db.session import make_engine, make_sessionmaker
 from server.repo import projects as repo
 
 # --------------------------------------------------------------------------- errors
@@ -327,6 +330,13 @@ class Services:
         self.sessions = sessions
         self.cache = CalcCache(cache_size)
         self._locks = _Locks()
+
+    @classmethod
+    def from_settings(cls, settings: Settings) -> Services:
+        """Services on ``settings.database_url``; raises DatabaseNotMigrated unless the schema is current."""
+        engine = make_engine(settings)
+        ensure_migrated(engine)
+        return cls(make_sessionmaker(engine), cache_size=settings.calc_cache_size)
 
     @contextmanager
     def _tx(self) -> Iterator[Session]:

@@ -319,7 +319,10 @@ class PanelContext:
 
 
 def panel_header_values(panel: Panel) -> dict[str, str]:
-    values = {k: fmt_value(getattr(panel, k)) for k in ("description", "bus_amps", "main_amps", "spaces", "sccr_ka", "location", "mounting")}
+    values = {
+        k: fmt_value(getattr(panel, k))
+        for k in ("description", "bus_amps", "main_amps", "spaces", "sccr_ka", "location", "mounting")
+    }
     for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c"):
         values[f"feeder_{k}"] = fmt_value(getattr(panel.feeder, k))
     return values
@@ -399,7 +402,17 @@ def transformer_row(snap: Snapshot, t: Transformer) -> TransformerRow:
 def transformer_values(t: Transformer) -> dict[str, str]:
     values = {
         k: fmt_value(getattr(t, k))
-        for k in ("kva", "primary", "secondary", "impedance_pct", "x_over_r", "loss_pct", "k_factor", "description", "location")
+        for k in (
+            "kva",
+            "primary",
+            "secondary",
+            "impedance_pct",
+            "x_over_r",
+            "loss_pct",
+            "k_factor",
+            "description",
+            "location",
+        )
     }
     for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c"):
         values[f"feeder_{k}"] = fmt_value(getattr(t.feeder, k))
@@ -474,7 +487,9 @@ class Riser:
     box_h: float = 58.0
 
 
-def riser_layout(nodes: list[TreeNode], *, box_w: float = 150.0, box_h: float = 58.0, gap_x: float = 18.0, gap_y: float = 46.0) -> Riser:
+def riser_layout(
+    nodes: list[TreeNode], *, box_w: float = 150.0, box_h: float = 58.0, gap_x: float = 18.0, gap_y: float = 46.0
+) -> Riser:
     """Leaves take successive columns; a parent sits centred over its children (tidy-tree layout)."""
     by_tag = {n.badge.tag: n for n in nodes}
     xs: dict[str, float] = {}

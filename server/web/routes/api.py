@@ -6,7 +6,7 @@ PUT replaces a whole project with a version-1 file; a file that breaks a rule is
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
 from fastapi import APIRouter, Body
 from fastapi.responses import JSONResponse
@@ -15,6 +15,8 @@ from server.services import EditRejected
 from server.web.deps import ServicesDep
 
 router = APIRouter(prefix="/api", tags=["api"])
+
+ProjectFileBody = Annotated[dict[str, Any], Body(description="a version-1 project file")]
 
 
 def _problems(exc: EditRejected) -> JSONResponse:
@@ -44,7 +46,7 @@ def get_project(pid: int, svc: ServicesDep) -> dict[str, Any]:
 
 
 @router.put("/projects/{pid}", summary="Replace the project with a version-1 file", response_model=None)
-def put_project(pid: int, svc: ServicesDep, body: dict[str, Any] = Body(...)) -> dict[str, Any] | JSONResponse:
+def put_project(pid: int, svc: ServicesDep, body: ProjectFileBody) -> dict[str, Any] | JSONResponse:
     svc.snapshot(pid)  # 404 before validation when the project does not exist
     try:
         snap = svc.replace_project(pid, body)
@@ -54,7 +56,7 @@ def put_project(pid: int, svc: ServicesDep, body: dict[str, Any] = Body(...)) ->
 
 
 @router.post("/projects", summary="Create a project from a version-1 file", status_code=201, response_model=None)
-def post_project(svc: ServicesDep, body: dict[str, Any] = Body(...)) -> dict[str, Any] | JSONResponse:
+def post_project(svc: ServicesDep, body: ProjectFileBody) -> dict[str, Any] | JSONResponse:
     try:
         pid = svc.create_project(body)
     except EditRejected as exc:

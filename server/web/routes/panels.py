@@ -35,7 +35,9 @@ def update_panel(
         svc.update_panel(pid, tag, form)
     except EditRejected as exc:
         ctx = panel_context(_checked(svc.snapshot(pid), tag), tag, header_values=form, header_errors=_panel_errors(exc))
-        return templates.TemplateResponse(request, "panels/detail.html", {"ctx": ctx, "page": ctx.page}, status_code=422)
+        return templates.TemplateResponse(
+            request, "panels/detail.html", {"ctx": ctx, "page": ctx.page}, status_code=422
+        )
     return RedirectResponse(request.url_for("panel", pid=pid, tag=tag).path, status_code=303)
 
 
@@ -57,13 +59,23 @@ _HEADER_FIELDS = {
     "sccr_ka",
     "location",
     "mounting",
-    *(f"feeder_{k}" for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c")),
+    *(
+        f"feeder_{k}"
+        for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c")
+    ),
 }
 
 
 @router.post(CIRCUIT, name="circuit_update")
 def update_circuit(
-    request: Request, pid: int, tag: str, slot: int, svc: ServicesDep, templates: TemplatesDep, htmx: HtmxDep, form: FormDep
+    request: Request,
+    pid: int,
+    tag: str,
+    slot: int,
+    svc: ServicesDep,
+    templates: TemplatesDep,
+    htmx: HtmxDep,
+    form: FormDep,
 ) -> Response:
     trigger = request.headers.get("HX-Trigger-Name")
     try:
@@ -78,7 +90,14 @@ def update_circuit(
 
 @router.post(CIRCUIT + "/add", name="circuit_add")
 def add_circuit(
-    request: Request, pid: int, tag: str, slot: int, svc: ServicesDep, templates: TemplatesDep, htmx: HtmxDep, form: FormDep
+    request: Request,
+    pid: int,
+    tag: str,
+    slot: int,
+    svc: ServicesDep,
+    templates: TemplatesDep,
+    htmx: HtmxDep,
+    form: FormDep,
 ) -> Response:
     try:
         snap = svc.edit_circuit(pid, tag, slot, form, create=True)
@@ -158,7 +177,14 @@ def _edit_response(
     return templates.TemplateResponse(
         request,
         "panels/_edit_response.html",
-        {"ctx": ctx, "page": ctx.page, "rows": rows, "cells": cells, "message": message, "status_error": status_code >= 400},
+        {
+            "ctx": ctx,
+            "page": ctx.page,
+            "rows": rows,
+            "cells": cells,
+            "message": message,
+            "status_error": status_code >= 400,
+        },
         status_code=status_code,
     )
 
@@ -180,10 +206,10 @@ def _rejected(
     typed = {k: v for k, v in form.items() if k in CIRCUIT_FORM_FIELDS}
     ctx = panel_context(snap, tag, override_slot=slot, override_values=typed, errors=errors)
     if not htmx:
-        return templates.TemplateResponse(request, "panels/detail.html", {"ctx": ctx, "page": ctx.page}, status_code=422)
-    where = f"Circuit {slot} not saved: " + "; ".join(
-        (f"{k}: {m}" if k else m) for k, m in errors.items()
-    )
+        return templates.TemplateResponse(
+            request, "panels/detail.html", {"ctx": ctx, "page": ctx.page}, status_code=422
+        )
+    where = f"Circuit {slot} not saved: " + "; ".join((f"{k}: {m}" if k else m) for k, m in errors.items())
     return _edit_response(
         request,
         templates,

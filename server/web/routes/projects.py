@@ -14,12 +14,26 @@ from server.web.views import Page, ProjectListContext, SettingsContext, page, se
 router = APIRouter(tags=["projects"])
 
 
-def _list(request: Request, svc: ServicesDep, templates: TemplatesDep, *, show_archived: bool = False,
-          values: dict | None = None, errors: dict | None = None, status_code: int = 200) -> Response:
-    ctx = ProjectListContext(Page("Projects"), svc.list_projects(include_archived=show_archived), show_archived,
-                             values or {"code": "NEC-2023", "occupancy": "office"}, errors or {})
-    return templates.TemplateResponse(request, "projects/list.html", {"ctx": ctx, "page": ctx.page},
-                                      status_code=status_code)
+def _list(
+    request: Request,
+    svc: ServicesDep,
+    templates: TemplatesDep,
+    *,
+    show_archived: bool = False,
+    values: dict | None = None,
+    errors: dict | None = None,
+    status_code: int = 200,
+) -> Response:
+    ctx = ProjectListContext(
+        Page("Projects"),
+        svc.list_projects(include_archived=show_archived),
+        show_archived,
+        values or {"code": "NEC-2023", "occupancy": "office"},
+        errors or {},
+    )
+    return templates.TemplateResponse(
+        request, "projects/list.html", {"ctx": ctx, "page": ctx.page}, status_code=status_code
+    )
 
 
 @router.get("/", name="projects")
@@ -64,7 +78,9 @@ def archive_project(pid: int, svc: ServicesDep, form: FormDep) -> Response:
 
 
 @router.get("/projects/{pid}/settings", name="project_settings")
-def show_settings(request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep, saved: bool = False) -> Response:
+def show_settings(
+    request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep, saved: bool = False
+) -> Response:
     snap = svc.snapshot(pid)
     ctx = SettingsContext(page(snap, "Project settings", "settings"), settings_values(snap), {}, saved)
     return templates.TemplateResponse(request, "projects/settings.html", {"ctx": ctx, "page": ctx.page})
@@ -80,8 +96,9 @@ def update_settings(request: Request, pid: int, svc: ServicesDep, templates: Tem
         if "include_future" not in form:
             values["include_future"] = "no"
         ctx = SettingsContext(page(snap, "Project settings", "settings"), values, exc.by_field())
-        return templates.TemplateResponse(request, "projects/settings.html", {"ctx": ctx, "page": ctx.page},
-                                          status_code=422)
+        return templates.TemplateResponse(
+            request, "projects/settings.html", {"ctx": ctx, "page": ctx.page}, status_code=422
+        )
     return RedirectResponse(f"/projects/{pid}/settings?saved=true", status_code=303)
 
 

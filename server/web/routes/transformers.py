@@ -24,13 +24,22 @@ router = APIRouter(tags=["transformers"])
 @router.get("/projects/{pid}/transformers", name="transformers")
 def schedule(request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep) -> Response:
     snap = svc.snapshot(pid)
-    ctx = TransformerScheduleContext(page(snap, "Transformer schedule", "transformers"),
-                                     [transformer_row(snap, t) for t in snap.model.transformers])
+    ctx = TransformerScheduleContext(
+        page(snap, "Transformer schedule", "transformers"), [transformer_row(snap, t) for t in snap.model.transformers]
+    )
     return templates.TemplateResponse(request, "transformers/schedule.html", {"ctx": ctx, "page": ctx.page})
 
 
-def _detail(request: Request, templates: TemplatesDep, snap: Snapshot, tag: str, *, values: dict | None = None,
-            errors: dict | None = None, status_code: int = 200) -> Response:
+def _detail(
+    request: Request,
+    templates: TemplatesDep,
+    snap: Snapshot,
+    tag: str,
+    *,
+    values: dict | None = None,
+    errors: dict | None = None,
+    status_code: int = 200,
+) -> Response:
     t = snap.model.transformer(tag)
     if t is None:
         raise NotFound(f"project {snap.info.number or snap.project_id} has no transformer {tag}")
@@ -44,8 +53,9 @@ def _detail(request: Request, templates: TemplatesDep, snap: Snapshot, tag: str,
         vals,
         errors or {},
     )
-    return templates.TemplateResponse(request, "transformers/detail.html", {"ctx": ctx, "page": ctx.page},
-                                      status_code=status_code)
+    return templates.TemplateResponse(
+        request, "transformers/detail.html", {"ctx": ctx, "page": ctx.page}, status_code=status_code
+    )
 
 
 @router.get("/projects/{pid}/transformers/{tag}", name="transformer")

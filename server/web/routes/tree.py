@@ -13,14 +13,24 @@ from server.web.views import DeleteContext, TreeContext, badge, children_of, pag
 router = APIRouter(tags=["tree"])
 
 
-def _tree(request: Request, templates: TemplatesDep, snap: Snapshot, *, values: dict | None = None,
-          errors: dict | None = None, form: str = "", status_code: int = 200) -> Response:
+def _tree(
+    request: Request,
+    templates: TemplatesDep,
+    snap: Snapshot,
+    *,
+    values: dict | None = None,
+    errors: dict | None = None,
+    form: str = "",
+    status_code: int = 200,
+) -> Response:
     nodes = tree_nodes(snap)
     feeders = [n.badge.tag for n in nodes]
-    ctx = TreeContext(page(snap, "Distribution", "tree"), nodes, riser_layout(nodes), feeders, values or {},
-                      errors or {}, form)
-    return templates.TemplateResponse(request, "tree/index.html", {"ctx": ctx, "page": ctx.page},
-                                      status_code=status_code)
+    ctx = TreeContext(
+        page(snap, "Distribution", "tree"), nodes, riser_layout(nodes), feeders, values or {}, errors or {}, form
+    )
+    return templates.TemplateResponse(
+        request, "tree/index.html", {"ctx": ctx, "page": ctx.page}, status_code=status_code
+    )
 
 
 @router.get("/projects/{pid}/tree", name="tree")
@@ -45,19 +55,22 @@ def add_node(request: Request, pid: int, svc: ServicesDep, templates: TemplatesD
     try:
         svc.add_node(pid, form)
     except EditRejected as exc:
-        return _tree(request, templates, svc.snapshot(pid), values=form, errors=_errors(exc), form="add",
-                     status_code=422)
+        return _tree(
+            request, templates, svc.snapshot(pid), values=form, errors=_errors(exc), form="add", status_code=422
+        )
     return RedirectResponse(f"/projects/{pid}/tree#node-{form.get('tag', '').strip()}", status_code=303)
 
 
 @router.post("/projects/{pid}/tree/{tag}/move", name="tree_move")
-def move_node(request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep,
-              form: FormDep) -> Response:
+def move_node(
+    request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: FormDep
+) -> Response:
     try:
         svc.move_node(pid, tag, form.get("parent") or None, breaker_amps=form.get("breaker_amps") or None)
     except EditRejected as exc:
-        return _tree(request, templates, svc.snapshot(pid), values=form, errors=_errors(exc), form=f"move:{tag}",
-                     status_code=422)
+        return _tree(
+            request, templates, svc.snapshot(pid), values=form, errors=_errors(exc), form=f"move:{tag}", status_code=422
+        )
     return RedirectResponse(f"/projects/{pid}/tree#node-{tag}", status_code=303)
 
 
@@ -66,8 +79,14 @@ def _delete_ctx(snap: Snapshot, tag: str, errors: dict | None = None) -> DeleteC
     down = subtree(data, tag)
     everything = [n.tag for n in (*snap.model.sources, *snap.model.transformers, *snap.model.panels)]
     candidates = [t for t in everything if t != tag and t not in down]
-    return DeleteContext(page(snap, f"Delete {tag}", "tree"), badge(snap, tag),
-                         [badge(snap, c) for c in children_of(snap, tag)], down, candidates, errors or {})
+    return DeleteContext(
+        page(snap, f"Delete {tag}", "tree"),
+        badge(snap, tag),
+        [badge(snap, c) for c in children_of(snap, tag)],
+        down,
+        candidates,
+        errors or {},
+    )
 
 
 @router.get("/projects/{pid}/tree/{tag}/delete", name="tree_delete_confirm")
@@ -80,8 +99,9 @@ def confirm_delete(request: Request, pid: int, tag: str, svc: ServicesDep, templ
 
 
 @router.post("/projects/{pid}/tree/{tag}/delete", name="tree_delete")
-def delete_node(request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep,
-                form: FormDep) -> Response:
+def delete_node(
+    request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: FormDep
+) -> Response:
     mode = form.get("dependants") or "refuse"
     if mode not in ("refuse", "delete", "refeed"):
         mode = "refuse"
@@ -89,15 +109,29 @@ def delete_node(request: Request, pid: int, tag: str, svc: ServicesDep, template
         svc.delete_node(pid, tag, dependants=mode, refeed_to=form.get("refeed_to") or None)
     except EditRejected as exc:
         ctx = _delete_ctx(svc.snapshot(pid), tag, _errors(exc))
-        return templates.TemplateResponse(request, "tree/delete.html", {"ctx": ctx, "page": ctx.page},
-                                          status_code=422)
+        return templates.TemplateResponse(request, "tree/delete.html", {"ctx": ctx, "page": ctx.page}, status_code=422)
     return RedirectResponse(f"/projects/{pid}/tree", status_code=303)
 
 
 def _errors(exc: EditRejected) -> dict[str, str]:
     """Messages keyed by form field; problems elsewhere in the project go under "" with their place."""
-    known = {"tag", "kind", "system", "parent", "kva", "primary", "secondary", "impedance_pct", "fault_ka",
-             "bus_amps", "main_amps", "spaces", "breaker_amps", "refeed_to", "dependants"}
+    known = {
+        "tag",
+        "kind",
+        "system",
+        "parent",
+        "kva",
+        "primary",
+        "secondary",
+        "impedance_pct",
+        "fault_ka",
+        "bus_amps",
+        "main_amps",
+        "spaces",
+        "breaker_amps",
+        "refeed_to",
+        "dependants",
+    }
     out: dict[str, str] = {}
     for p in exc.problems:
         key = p.field if p.field in known else ""

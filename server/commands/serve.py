@@ -1,0 +1,30 @@
+"""``panelwright serve``: run the web app with uvicorn (127.0.0.1:8000 unless told otherwise)."""
+
+from __future__ import annotations
+
+import click
+
+from server.config import Settings
+from server.db.migrate import DatabaseNotMigrated
+
+from . import CAUTION, fail
+
+
+@click.command("serve")
+@click.option("--host", default=None, help="Address to bind (default 127.0.0.1; 0.0.0.0 opens it to the LAN)")
+@click.option("--port", default=None, type=click.IntRange(1, 65535), help="Port (default 8000)")
+def command(host: str | None, port: int | None) -> None:
+    """Serve the web app to browsers (this machine only, unless --host says otherwise)."""
+    import uvicorn
+
+    from server.web.app import create_app
+
+    settings = Settings()
+    settings = settings.model_copy(update={"host": host or settings.host, "port": port or settings.port})
+    try:
+        app = create_app(settings)
+    except DatabaseNotMigrated as exc:
+        fail(str(exc))
+    click.echo(f"Panelwright on http://{settings.host}:{settings.port}/  (database {settings.database_url})", err=True)
+    click.echo(CAUTION, err=True)
+    uvicorn.run(app, host=settings.host, port=settings.port, log_level=settings.log_level)
