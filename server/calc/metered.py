@@ -55,8 +55,8 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta, tzinfo
 from enum import StrEnum
-from itertools import repeat
-from operator import sub
+from itertools import islice, repeat
+from operator import add, floordiv, le, lt, sub
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo
@@ -461,11 +461,12 @@ def parse_timestamp(s: str) -> datetime:
 class _Columns:
     """Columnar readings in file order (mutable while being built)."""
 
-    lines: list[int]
+    lines: Sequence[int]  # physical line of each reading
     times: list[datetime]
     total: list[float] | None
     phases: list[list[float]]
     bad: list[BadRow]
+    scale: float = 1.0  # multiplies every value to reach kW or kVA (applied to results only)
 
 
 def _decode(data: bytes, name: str) -> tuple[str, str | None]:
@@ -548,40 +549,58 @@ def _read_rows(text: str, name: str, volts: float | None) -> tuple[_Plan, list[s
     notes: list[str] = []
     delim = _sniff_delimiter(text)
     try:
-        rows = list(csv.reader(io.StringIO(text), delimiter=delim))
+        head = list(islice(csv.reader(io.StringIO(text), delimiter=delim), _HEADER_SCAN_ROWS))
     except csv.Error as exc:
         raise MeteredDataError(f"not a readable CSV file ({exc})", source=name) from None
-    hi, plan, why = _find_header(rows, name, volts)
+    hi, plan, why = _find_header(head, name, volts)
     if why:
         notes.append(why)
     if plan.ignored:
         notes.append(f"columns not used: {', '.join(plan.ignored)}")
-    data = rows[hi + 1 :]
-    while data and not data[-1]:
-        data.pop()
-    header_line = hi + 1  # physical line of the header when every record is one line
-    cols = None
-    if len(rows) == text.count("\n") + (0 if text.endswith("\n") else 1) and not plan.volts:
-        cols = _fast_columns(data, plan, header_line)
+    cols = None if plan.volts else _fast_columns(text, delim, hi, plan)
     if cols is None:
-        cols = _slow_columns(text, delim, hi, plan, volts)
+        try:
+            cols = _slow_columns(text, delim, hi, plan, volts)
+        except csv.Error as exc:
+            raise MeteredDataError(f"not a readable CSV file ({exc})", source=name) from None
     return plan, notes, cols
 
 
-def _fast_columns(data: list[list[str]], plan: _Plan, header_line: int) -> _Columns | None:
-    """Whole-column parsing with C-level maps; ``None`` as soon as anything is irregular."""
-    if not data:
+def _fast_columns(text: str, delim: str, header_row: int, plan: _Plan) -> _Columns | None:
+    """Whole-column parsing with C-level string and map operations (no per-row objects).
+
+    Only for the plain case: no quoting, no stray carriage return, every line with the
+    header's number of fields (checked by total), every timestamp and number well formed and
+    every value finite and not negative.  ``None`` as soon as anything differs; the row-by-row
+    reader then finds and explains it.  A line with too many or too few fields shifts the
+    columns, so a timestamp lands among the numbers (or the reverse) and parsing fails: the
+    row-by-row reader takes over.
+    """
+    if '"' in text:
         return None
-    try:
-        columns = list(zip(*data, strict=True))
-    except ValueError:
+    if "\r" in text:
+        text = text.replace("\r\n", "\n")
+        if "\r" in text:
+            return None
+    start = 0
+    for _ in range(header_row + 1):
+        start = text.find("\n", start) + 1
+        if start == 0:
+            return None
+    body = text[start:].rstrip("\n")  # trailing blank lines are skipped by both readers
+    if not body:
         return None
-    if len(columns) != plan.ncols:
+    ncols = plan.ncols
+    nlines = body.count("\n") + 1
+    if body.count(delim) != (ncols - 1) * nlines:
         return None
+    flat = body.replace("\n", delim).split(delim)
     if plan.time_index is not None:
-        raw_t: Sequence[str] = columns[plan.time_index]
+        raw_t: Sequence[str] = flat[plan.time_index :: ncols]
     else:
-        raw_t = [f"{d} {t}" for d, t in zip(columns[plan.date_index], columns[plan.clock_index], strict=True)]  # type: ignore[index]
+        dates = flat[plan.date_index :: ncols]  # type: ignore[misc]
+        clocks = flat[plan.clock_index :: ncols]  # type: ignore[misc]
+        raw_t = list(map(" ".join, zip(dates, clocks, strict=True)))
     try:
         if "/" in raw_t[0]:
             times = list(map(_parse_mdy, raw_t))
@@ -589,23 +608,36 @@ def _fast_columns(data: list[list[str]], plan: _Plan, header_line: int) -> _Colu
             times = list(map(datetime.fromisoformat, raw_t))
     except ValueError:
         return None
-    series: list[list[float]] = []
-    for c in plan.value_columns:
-        try:
-            vals = list(map(float, columns[c.index]))
-        except ValueError:
+    raw_cols = [flat[c.index :: ncols] for c in plan.value_columns]
+    del flat
+    try:
+        series = _floats(raw_cols)
+    except ValueError:
+        return None
+    for vals in series:
+        if not math.isfinite(sum(vals)) or min(vals) < 0:  # NaN, infinity or a negative reading
             return None
-        s = sum(vals)
-        if not math.isfinite(s) or min(vals) < 0:
-            return None
-        if c.factor != 1.0:
-            f = c.factor
-            vals = [v * f for v in vals]
-        series.append(vals)
     total = series[0] if plan.total is not None else None
     phases = series[1:] if plan.total is not None else series
-    lines = list(range(header_line + 1, header_line + 1 + len(data)))
-    return _Columns(lines, times, total, phases, [])
+    first_line = header_row + 2  # physical line of the first data row (1-based)
+    scale = plan.value_columns[0].factor  # one unit for every value column (checked by _plan)
+    return _Columns(range(first_line, first_line + nlines), times, total, phases, [], scale)
+
+
+def _floats(columns: list[list[str]]) -> list[list[float]]:
+    """Numbers of text columns; raises ``ValueError`` on the first malformed one.
+
+    Meter readings are quantised (a few thousand distinct strings in a year of 15-minute
+    data), so each distinct string is converted once and looked up after that; when most
+    strings are distinct, plain conversion is cheaper and is used.
+    """
+    distinct: set[str] = set()
+    distinct.update(*columns)
+    if len(distinct) * 2 > sum(map(len, columns)):
+        return [list(map(float, c)) for c in columns]
+    number = dict(zip(distinct, map(float, distinct), strict=True))
+    lookup = number.__getitem__
+    return [list(map(lookup, c)) for c in columns]
 
 
 def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: float | None) -> _Columns:
@@ -654,44 +686,63 @@ def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: fl
 # --------------------------------------------------------------------------- analysis core
 
 
-class _Zone:
-    """UTC offsets of a time zone, cached per hour (exact per reading near clock changes)."""
+#: Marks a day on which the zone's UTC offset changes (readings that day are placed one by one).
+_CHANGES = float("nan")
+_EPOCH_ORDINAL = _EPOCH_DATE.toordinal()
+
+
+class _WallDays(dict[float, float]):
+    """UTC offset (s) of a zone per wall-clock day (days since 1970), or ``_CHANGES``.
+
+    A dict so that lookups run at C speed (``map(d.__getitem__, ...)``); a day is computed once.
+    A day whose offset is the same at both ends (both folds) is taken as constant: tz data has no
+    zone with two opposite changes within one day.
+    """
 
     def __init__(self, tz: tzinfo) -> None:
+        super().__init__()
         self.tz = tz
-        self._wall: dict[int, float | None] = {}
-        self._utc: dict[int, float | None] = {}
 
-    def _off(self, naive: datetime, fold: int) -> float:
-        off = naive.replace(tzinfo=self.tz, fold=fold).utcoffset()
-        return off.total_seconds() if off is not None else 0.0
+    def __missing__(self, day: float) -> float:
+        a = _EPOCH + timedelta(days=day)
+        b = a + timedelta(seconds=86399)
+        offs = {_offset_s(a, self.tz, 0), _offset_s(a, self.tz, 1), _offset_s(b, self.tz, 0), _offset_s(b, self.tz, 1)}
+        value = offs.pop() if len(offs) == 1 else _CHANGES
+        self[day] = value
+        return value
 
-    def wall_hour(self, h: int) -> float | None:
-        """Offset for every wall-clock time in hour ``h`` (seconds since 1970 / 3600), or None."""
-        if h not in self._wall:
-            a = _EPOCH + timedelta(hours=h)
-            b = a + timedelta(seconds=3599)
-            offs = {self._off(a, 0), self._off(a, 1), self._off(b, 0), self._off(b, 1)}
-            self._wall[h] = offs.pop() if len(offs) == 1 else None
-        return self._wall[h]
 
-    def exact_wall(self, w: float) -> tuple[float, float]:
-        """(offset with fold=0, offset with fold=1) of wall-clock seconds ``w``."""
-        naive = _EPOCH + timedelta(seconds=w)
-        return self._off(naive, 0), self._off(naive, 1)
+class _UtcDays(dict[float, float]):
+    """UTC offset (s) of a zone per UTC day (days since 1970), or ``_CHANGES``."""
 
-    def utc_offset(self, u: float) -> float:
-        h = int(u // 3600)
-        if h not in self._utc:
-            a = datetime.fromtimestamp(h * 3600, UTC)
-            o1 = self.tz.utcoffset(a.astimezone(self.tz))
-            o2 = self.tz.utcoffset((a + timedelta(seconds=3599)).astimezone(self.tz))
-            self._utc[h] = o1.total_seconds() if o1 == o2 and o1 is not None else None
-        off = self._utc[h]
-        if off is None:
-            o = datetime.fromtimestamp(u, UTC).astimezone(self.tz).utcoffset()
-            return o.total_seconds() if o is not None else 0.0
-        return off
+    def __init__(self, tz: tzinfo) -> None:
+        super().__init__()
+        self.tz = tz
+
+    def __missing__(self, day: float) -> float:
+        a = datetime.fromtimestamp(day * 86400.0, UTC)
+        o1 = a.astimezone(self.tz).utcoffset()
+        o2 = (a + timedelta(seconds=86399)).astimezone(self.tz).utcoffset()
+        value = o1.total_seconds() if o1 == o2 and o1 is not None else _CHANGES
+        self[day] = value
+        return value
+
+
+def _offset_s(naive: datetime, tz: tzinfo, fold: int) -> float:
+    off = naive.replace(tzinfo=tz, fold=fold).utcoffset()
+    return off.total_seconds() if off is not None else 0.0
+
+
+def _indices_of(values: list[float], marker: float) -> list[int]:
+    """Positions holding ``marker`` itself (identity: list.index scans at C speed)."""
+    out: list[int] = []
+    k = -1
+    while True:
+        try:
+            k = values.index(marker, k + 1)
+        except ValueError:
+            return out
+        out.append(k)
 
 
 def _zone_name(tz: tzinfo) -> str:
@@ -714,8 +765,11 @@ def _row_values(cols: _Columns) -> Callable[[int], tuple[float, ...]]:
 
 def _instants(
     cols: _Columns, tz: tzinfo | None, notes: list[str]
-) -> tuple[list[float], list[float], int, list[BadRow], Callable[[float, int], datetime]]:
-    """UTC seconds and wall-clock seconds of every reading, in file order.
+) -> tuple[list[Any], list[Any], int, list[BadRow], Callable[[Any, int], datetime]]:
+    """Instants and wall-clock times of every reading, in file order.
+
+    With ``tz``: UTC seconds and wall-clock seconds (floats).  Without: the datetimes themselves
+    (naive ones taken at a fixed offset), which order, subtract and compare at C speed.
 
     Returns ``(u, w, dst_repeats, bad, to_datetime)``; readings found bad here are already
     removed from ``cols``.  ``to_datetime(u, k)`` gives the timestamp to show for reading ``k``.
@@ -741,51 +795,53 @@ def _instants(
         n = len(times)
         offsets = set(map(datetime.utcoffset, times))
 
-    if None not in offsets:  # every timestamp carries its UTC offset
+    if tz is None:
+        if None in offsets:
+            notes.append(
+                "timestamps carry no UTC offset and no time zone was given: read as a fixed offset "
+                "(a daylight-saving repeat would show as duplicates, a skipped hour as a gap)"
+            )
+        # The datetimes themselves order, subtract and compare correctly (offsets included).
+        return times, times, 0, bad, lambda x, k: cols.times[k]
+
+    if None not in offsets:  # every timestamp carries its UTC offset: show them in ``tz``
         u = list(map(datetime.timestamp, times))
-        if tz is None:
-            off_s = map(timedelta.total_seconds, map(datetime.utcoffset, times))  # type: ignore[arg-type]
-            w = [a + b for a, b in zip(u, off_s, strict=True)]
-            return u, w, 0, bad, lambda x, k: cols.times[k]
-        zone = _Zone(tz)
-        w = [x + zone.utc_offset(x) for x in u]
+        utc_days = _UtcDays(tz)
+        offs = list(map(utc_days.__getitem__, map(floordiv, u, repeat(86400.0))))
+        for k in _indices_of(offs, _CHANGES):
+            o = datetime.fromtimestamp(u[k], UTC).astimezone(tz).utcoffset()
+            offs[k] = o.total_seconds() if o is not None else 0.0
+        w = list(map(add, u, offs))
         return u, w, 0, bad, lambda x, k: datetime.fromtimestamp(x, tz)
 
+    # Naive wall-clock times in ``tz``.
     w = list(map(timedelta.total_seconds, map(sub, times, repeat(_EPOCH))))
-    if tz is None:
-        notes.append(
-            "timestamps carry no UTC offset and no time zone was given: read as a fixed offset "
-            "(a daylight-saving repeat would show as duplicates, a skipped hour as a gap)"
-        )
-        return w, w, 0, bad, lambda x, k: cols.times[k]
-
-    zone = _Zone(tz)
-    u = [0.0] * n
+    wall_days = _WallDays(tz)
+    offs = list(map(wall_days.__getitem__, map(floordiv, w, repeat(86400.0))))
     dst_repeats = 0
     passes: dict[float, list[int | None]] = {}  # ambiguous wall time -> [first pass, second pass]
     drop: list[int] = []
     values = _row_values(cols)
-    for k, x in enumerate(w):
-        off = zone.wall_hour(int(x // 3600))
-        if off is not None:
-            u[k] = x - off
-            continue
-        o0, o1 = zone.exact_wall(x)
+    for k in _indices_of(offs, _CHANGES):  # in file order: the first pass comes first
+        x = w[k]
+        naive = _EPOCH + timedelta(seconds=x)
+        o0, o1 = _offset_s(naive, tz, 0), _offset_s(naive, tz, 1)
         if o0 == o1:
-            u[k] = x - o0
+            offs[k] = o0
         elif o0 > o1:  # inside the fall-back hour: this wall-clock time happens twice
             seen = passes.get(x)
             if seen is None:
                 passes[x] = [k, None]
-                u[k] = x - o0
+                offs[k] = o0
             elif values(k) == values(seen[0]):  # type: ignore[arg-type]
-                u[k] = x - o0  # same values again: a duplicate of the first pass
+                offs[k] = o0  # the same values again: a duplicate of the first pass
             else:
-                u[k] = x - o1
+                offs[k] = o1
                 if seen[1] is None:
                     seen[1] = k
                     dst_repeats += 1
         else:  # inside the spring-forward hour: this wall-clock time never happens
+            offs[k] = 0.0
             drop.append(k)
             bad.append(
                 BadRow(
@@ -793,6 +849,7 @@ def _instants(
                     f"{times[k].isoformat(sep=' ')} does not exist in {_zone_name(tz)} (daylight-saving clock change)",
                 )
             )
+    u = list(map(sub, w, offs))
     if drop:
         dropped = set(drop)
         keep = [k for k in range(n) if k not in dropped]
@@ -802,13 +859,13 @@ def _instants(
     return u, w, dst_repeats, bad, lambda x, k: datetime.fromtimestamp(x, tz)
 
 
-def _rolling(u: list[float], series: list[list[float]], iv: float) -> tuple[list[int], list[list[float]]]:
+def _rolling(u: list[Any], series: list[list[float]], iv: Any, iv_s: float) -> tuple[list[int], list[list[float]]]:
     """15-minute rolling means of readings ``iv`` seconds apart; only complete windows count.
 
     Returns the position (in ``u``) of each window's last reading and the means per series.
     """
-    k = round(DEMAND_WINDOW_S / iv)
-    span = (k - 1) * iv
+    k = round(DEMAND_WINDOW_S / iv_s)
+    span = (k - 1) * iv  # seconds or a timedelta, like the instants
     ends = [j for j in range(k - 1, len(u)) if u[j] - u[j - k + 1] == span]
     out: list[list[float]] = []
     for s in series:
@@ -819,6 +876,19 @@ def _rolling(u: list[float], series: list[list[float]], iv: float) -> tuple[list
             prefix.append(acc)
         out.append([(prefix[j + 1] - prefix[j + 1 - k]) / k for j in ends])
     return ends, out
+
+
+def _secs(x: Any) -> float:
+    """Seconds of a difference of instants (a timedelta, or already seconds)."""
+    return x.total_seconds() if isinstance(x, timedelta) else float(x)
+
+
+def _sum_series(series: list[list[float]]) -> list[float]:
+    """Element-wise sum of equally long series (C-level maps: no per-row tuples)."""
+    acc: Iterable[float] = series[0]
+    for s in series[1:]:
+        acc = map(add, acc, s)
+    return list(acc)
 
 
 def _fmt_minutes(x: float) -> str:
@@ -849,11 +919,11 @@ def _analyze(
             bad_rows=tuple((b.line, b.reason) for b in bad),
         )
     rows = n
-    total = cols.total if cols.total is not None else [sum(t) for t in zip(*cols.phases, strict=True)]
+    total = cols.total if cols.total is not None else _sum_series(cols.phases)
     phases = cols.phases
 
     # Time order, then one reading per instant (the higher total is kept: conservative).
-    if all(a < b for a, b in zip(u, u[1:], strict=False)):
+    if all(map(lt, u, islice(u, 1, None))):
         order = None
         duplicates = 0
     else:
@@ -880,10 +950,15 @@ def _analyze(
     if readings < 2:
         raise MeteredDataError("needs at least two distinct timestamps", source=source)
 
-    deltas = list(map(sub, u[1:], u[:-1]))
-    counts = Counter(deltas)
-    iv = max(counts.items(), key=lambda kv: (kv[1], -kv[0]))[0]
-    interval_minutes = iv / 60.0
+    deltas = list(map(sub, islice(u, 1, None), u))
+    if deltas.count(deltas[0]) == len(deltas):  # evenly spaced: the usual case
+        iv = deltas[0]
+        deltas = []
+    else:
+        counts = Counter(deltas)
+        iv = max(counts.items(), key=lambda kv: (kv[1], -kv[0]))[0]
+    iv_s = _secs(iv)
+    interval_minutes = iv_s / 60.0
     gaps = 0
     irregular = 0
     for d in (d for d in deltas if d != iv):
@@ -898,8 +973,8 @@ def _analyze(
         )
 
     # The 15-minute demand series.
-    if iv < DEMAND_WINDOW_S and abs(DEMAND_WINDOW_S / iv - round(DEMAND_WINDOW_S / iv)) < 1e-9:
-        ends, rolled = _rolling(u, [total, *phases], iv)
+    if iv_s < DEMAND_WINDOW_S and abs(DEMAND_WINDOW_S / iv_s - round(DEMAND_WINDOW_S / iv_s)) < 1e-9:
+        ends, rolled = _rolling(u, [total, *phases], iv, iv_s)
         if not ends:
             raise MeteredDataError(
                 f"no complete 15-minute window of {_fmt_minutes(interval_minutes)}-minute readings", source=source
@@ -911,21 +986,21 @@ def _analyze(
             "(complete windows only; never below the block average)"
         )
     else:
-        pos = list(range(readings))
+        pos: list[int] | range = range(readings)
         d_total, d_phases = total, phases
         window = f"readings as recorded ({_fmt_minutes(interval_minutes)}-minute intervals)"
-        if iv < DEMAND_WINDOW_S:
+        if iv_s < DEMAND_WINDOW_S:
             notes.append(
                 f"{_fmt_minutes(interval_minutes)}-minute interval does not divide 15 minutes: readings used as "
                 "recorded (the peak may be overstated)"
             )
-        elif iv > DEMAND_WINDOW_S:
+        elif iv_s > DEMAND_WINDOW_S:
             notes.append(
                 f"{_fmt_minutes(interval_minutes)}-minute interval is longer than the 15-minute demand interval of "
                 "220.87: the 15-minute peak may be understated"
             )
 
-    to_kva = 1.0 / pf if quantity == Quantity.KW else 1.0
+    to_kva = cols.scale / pf if quantity == Quantity.KW else cols.scale
     conversion = f"kW converted to kVA at pf {pf:.2f}" if quantity == Quantity.KW else None
 
     def at(p: int) -> datetime:
@@ -940,7 +1015,7 @@ def _analyze(
         m = max(s)
         phase_peaks.append(PhasePeak(name, m * to_kva, at(pos[s.index(m)])))
 
-    coverage_days = (u[-1] - u[0] + iv) / 86400.0
+    coverage_days = _secs(u[-1] - u[0] + iv) / 86400.0
     if gaps:
         notes.append(
             f"{gaps} missing intervals: 220.87 asks for a continuous recording; check the gaps do not hide the peak"
@@ -1018,24 +1093,31 @@ def _analyze(
     )
 
 
-def _daily(w: list[float], pos: list[int], series: list[float], to_kva: float) -> tuple[DailyPeak, ...]:
-    """Peak per local calendar day of the demand series (window ends ``pos`` in ``w``)."""
-    days = [int(w[p] // 86400) for p in pos]
+def _daily(w: list[Any], pos: list[int] | range, series: list[float], to_kva: float) -> tuple[DailyPeak, ...]:
+    """Peak per local calendar day of the demand series (window ends ``pos`` in ``w``).
+
+    ``w`` holds wall-clock datetimes or wall-clock seconds since 1970; days are proleptic
+    Gregorian ordinals either way.
+    """
+    wp = w if isinstance(pos, range) else [w[p] for p in pos]
+    if wp and isinstance(wp[0], datetime):
+        days: list[float] = list(map(datetime.toordinal, wp))
+    else:
+        days = [d + _EPOCH_ORDINAL for d in map(floordiv, wp, repeat(86400.0))]
     out: list[DailyPeak] = []
-    if all(a <= b for a, b in zip(days, days[1:], strict=False)):
-        start = 0
-        n = len(days)
+    if all(map(le, days, islice(days, 1, None))):  # local days in order: slice per day
+        start, n = 0, len(days)
         while start < n:
             d = days[start]
             end = bisect_right(days, d, start)
-            out.append(DailyPeak(_EPOCH_DATE + timedelta(days=d), max(series[start:end]) * to_kva))
+            out.append(DailyPeak(date.fromordinal(int(d)), max(series[start:end]) * to_kva))
             start = end
         return tuple(out)
-    best: dict[int, float] = {}
+    best: dict[float, float] = {}
     for d, x in zip(days, series, strict=True):
         if x > best.get(d, -1.0):
             best[d] = x
-    return tuple(DailyPeak(_EPOCH_DATE + timedelta(days=d), best[d] * to_kva) for d in sorted(best))
+    return tuple(DailyPeak(date.fromordinal(int(d)), best[d] * to_kva) for d in sorted(best))
 
 
 # --------------------------------------------------------------------------- public API
