@@ -423,3 +423,11 @@ def test_replace_keeps_feeder_frozen() -> None:
     _design(180.0, feeder)
     assert feeder == Feeder()
     assert _design(180.0, replace(feeder, material=Material.AL)).result.material == "Al"
+
+
+def test_given_single_set_too_large_load_reports_no_size() -> None:
+    # One set forced: the largest size, 1000 kcmil Cu at 75 °C = 545 A (NFPA 70-2023 Table 310.16, from memory),
+    # cannot carry 700 A → no-standard-size error, largest size reported, no exception.
+    d = _design(700.0, Feeder(sets=1), system=WYE480)
+    assert WarningCode.NO_SIZE in _codes(d)
+    assert (d.result.sets, d.result.conductor) == (1, "1000")
