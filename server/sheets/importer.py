@@ -14,6 +14,7 @@ Nothing is written here: :class:`ImportPreview` is shown to the user, and only
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from collections.abc import Iterable, Sequence
@@ -50,12 +51,19 @@ class PreviewRow:
 
     sheet: str
     sheet_row: int  # 1-based row number as the spreadsheet program shows it
-    cells: tuple[str, ...]  # the cell texts as read
+    values: tuple[CellValue, ...]  # the cells as read (formulas as their text)
     panel: str | None = None
     circuit: Circuit | None = None
     phases: tuple[str, ...] = ()
     problems: tuple[CellProblem, ...] = ()
     ignored: str = ""  # why the row is not imported ("blank row", "totals row" ...)
+
+    width: int = 0
+
+    @property
+    def cells(self) -> tuple[str, ...]:
+        """The cell texts as read, one per sheet column."""
+        return _row_texts(self.values, self.width)
 
     @property
     def has_error(self) -> bool:
@@ -149,6 +157,7 @@ def _text(v: CellValue) -> str:
     return str(v).strip()
 
 
+@functools.lru_cache(maxsize=512)
 def category_of(text: str) -> Category | None:
     t = normalise(text).replace("_", " ")
     try:
@@ -465,23 +474,31 @@ def _sheet_rows(
     out: list[PreviewRow] = []
     for r in range(cmap.header_row + 1, len(grid.rows)):
         values = grid.rows[r]
-        texts = _row_texts(values, width)
-        base = PreviewRow(sheet=plan.sheet, sheet_row=r + 1, cells=texts)
+
+        def row_of(**kw: object) -> PreviewRow:
+            return PreviewRow(sheet=plan.sheet, sheet_row=r + 1, values=values, width=width, **kw)  # noqa: B023
+
         if ended:
             if not _is_blank(values):
-                out.append(replace(base, ignored=ended))
+                out.append(row_of(ignored=ended))
             continue
         if _is_blank(values):
             continue  # blank rows are layout, not data
-        if tuple(normalise(t) for t in texts[: len(header_key)]) == header_key:
-            out.append(replace(base, ignored="repeated header row"))
+        key_col = slot_col if slot_col is not None else 0
+        key_value = values[key_col] if key_col < len(values) else None
+        if (
+            isinstance(key_value, str)
+            and normalise(key_value) == header_key[key_col]
+            and all(normalise(t) == h for t, h in zip(_row_texts(values, width), header_key, strict=False))
+        ):
+            out.append(row_of(ignored="repeated header row"))
             continue
         slot_value = values[slot_col] if slot_col is not None and slot_col < len(values) else None
         if slot_value is None or slot_value == "":
-            joined = normalise(" ".join(texts))
+            joined = normalise(" ".join(_row_texts(values, width)))
             if _TOTAL_RE.search(joined):
                 ended = "below the totals row"
-                out.append(replace(base, ignored="totals row (not a circuit)"))
+                out.append(row_of(ignored="totals row (not a circuit)"))
                 continue
         w = _read_row(values, formulas_by_row.get(r, set()), cols)
         # the panel of the row
@@ -493,22 +510,22 @@ def _sheet_rows(
             elif project.panel(tag) is None:
                 w.problems.append(CellProblem(f"panel {tag!r} is not in this project", panel_col, "panel"))
                 tag = None
-        base = replace(base, panel=tag)
         if "slot" not in w.raw:
             if not any(k in w.raw for k in ("description", "breaker_amps", "category")) and w.load is None:
-                out.append(replace(base, ignored="no slot and no circuit data", problems=tuple(w.problems)))
+                out.append(row_of(panel=tag, ignored="no slot and no circuit data", problems=tuple(w.problems)))
             else:
                 w.problems.append(CellProblem("no slot number; every circuit needs one", slot_col, "slot"))
-                out.append(replace(base, problems=tuple(w.problems)))
+                out.append(row_of(panel=tag, problems=tuple(w.problems)))
             continue
         described = any(k in w.raw for k in ("description", "breaker_amps", "category", "poles", "feeds"))
         if not described and w.load is None and not w.problems:
-            out.append(replace(base, ignored="empty slot"))
+            out.append(row_of(panel=tag, ignored="empty slot"))
             continue
         desc = str(w.raw.get("description", ""))
-        if normalise(desc) in ("space", "spc") and "poles" not in w.raw:
+        word = desc.strip().lower() if len(desc) <= 8 else ""
+        if word in ("space", "spc") and "poles" not in w.raw:
             w.raw["poles"] = 0
-        if normalise(desc) in ("spare", "spr") and "category" not in w.raw:
+        if word in ("spare", "spr") and "category" not in w.raw:
             w.raw["category"] = Category.SPARE.value
         panel = project.panel(tag) if tag else None
         spec = SYSTEMS.get(panel.system) if panel else None
@@ -550,7 +567,7 @@ def _sheet_rows(
                             Severity.WARNING,
                         )
                     )
-        row = replace(base, circuit=circuit, phases=phases, problems=tuple(w.problems))
+        row = row_of(panel=tag, circuit=circuit, phases=phases, problems=tuple(w.problems))
         if circuit is not None and tag is not None and panel is not None:
             by_panel.setdefault(tag, []).append((offset + len(out), circuit))
         out.append(row)

@@ -1,0 +1,133 @@
+"""Benchmark: spreadsheet import of a 2,000-row circuit table (parse + map + validate).
+
+Run as ``python -m tests.benchmarks.bench_sheets`` or ``pytest tests/benchmarks/bench_sheets.py``.
+The floor is openpyxl alone reading the same workbook (``read_only=True``, every value
+iterated), measured in the same run; the figure is the ratio of medians.  Target: ≤ 2×.
+
+The sheet holds 2,000 circuits of ten invented 208Y/120 panels (200 spaces each) in the
+shape the CSV export writes: a Panel column, then Slot, Poles, Description, Category, kVA,
+Trip "20/1" notation and Phase, so the import does every step: the zip checks, reading, header
+guess, notation parsing, kVA conversion, parse_circuit per row, check_panel per panel and
+check_topology for the project.
+"""
+
+from __future__ import annotations
+
+import io
+import random
+import statistics
+import sys
+import time
+
+import openpyxl
+
+from server.calc.projectfile import parse_project
+from server.calc.systems import SYSTEMS, breaker_phases
+from server.sheets import plan_sheets, preview_upload, read_upload
+
+ROWS = 2_000
+PANELS = 10
+REPEATS = 7
+TARGET_RATIO = 2.0
+SYSTEM = "208Y/120 3PH 4W"
+
+
+def make_project():
+    return parse_project(
+        {
+            "format": "panelwright.project",
+            "version": 1,
+            "project": {"name": "Bench", "number": "B-1"},
+            "sources": [{"tag": "SVC", "system": SYSTEM}],
+            "panels": [
+                {"tag": f"P{i:02d}", "system": SYSTEM, "fed_from": "SVC", "spaces": 200, "circuits": []}
+                for i in range(PANELS)
+            ],
+        }
+    )
+
+
+def make_workbook(seed: int = 11) -> bytes:
+    rnd = random.Random(seed)
+    spec = SYSTEMS[SYSTEM]
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Circuits"
+    ws.append(["Panel", "Slot", "Poles", "Description", "Category", "Load (kVA)", "Trip", "Phase"])
+    per_panel = ROWS // PANELS
+    cats = ["Lighting", "Recept", "HVAC", "Equip", "Heat"]
+    for i in range(PANELS):
+        for slot in range(1, per_panel + 1):
+            ws.append(
+                [
+                    f"P{i:02d}",
+                    slot,
+                    1,
+                    f"Load {i}-{slot}",
+                    rnd.choice(cats),
+                    round(rnd.uniform(0.1, 2.0), 2),
+                    f"{rnd.choice([15, 20, 30])}/1",
+                    breaker_phases(spec, slot, 1)[0],
+                ]
+            )
+    buf = io.BytesIO()
+    wb.save(buf)
+    return buf.getvalue()
+
+
+def floor(data: bytes) -> int:
+    wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=False)
+    n = 0
+    for ws in wb.worksheets:
+        for row in ws.iter_rows(values_only=True):
+            n += len(row)
+    wb.close()
+    return n
+
+
+def run_import(data: bytes, project) -> int:
+    book = read_upload(data, "bench.xlsx")
+    preview = preview_upload(book, plan_sheets(book, project), project)
+    if not preview.can_commit:
+        raise AssertionError("\n".join(preview.problem_lines(10)))
+    return sum(len(c) for c in preview.circuits.values())
+
+
+def _median(fn, *args) -> float:
+    times = []
+    for _ in range(REPEATS):
+        t0 = time.perf_counter()
+        fn(*args)
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times)
+
+
+def measure() -> dict[str, float]:
+    data = make_workbook()
+    project = make_project()
+    assert run_import(data, project) == ROWS
+    floor(data)  # warm both paths once
+    t_floor = _median(floor, data)
+    t_import = _median(run_import, data, project)
+    return {"floor_s": t_floor, "import_s": t_import, "ratio": t_import / t_floor, "bytes": len(data)}
+
+
+def report(figures: dict[str, float]) -> str:
+    return (
+        f"sheets import, {ROWS} rows / {PANELS} panels ({figures['bytes'] / 1024:.0f} kB XLSX), median of {REPEATS}:\n"
+        f"  floor (openpyxl read_only, values only): {figures['floor_s'] * 1000:8.1f} ms\n"
+        f"  import (checks + read + map + validate): {figures['import_s'] * 1000:8.1f} ms\n"
+        f"  ratio: {figures['ratio']:.2f}x (target <= {TARGET_RATIO:.1f}x)"
+    )
+
+
+def test_bench_sheets_import() -> None:
+    figures = measure()
+    print()
+    print(report(figures))
+
+
+if __name__ == "__main__":
+    figures = measure()
+    print(report(figures))
+    sys.exit(0)

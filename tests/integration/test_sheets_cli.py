@@ -1,0 +1,171 @@
+"""``import-sheet`` and ``export-sheet`` against a migrated temporary SQLite database."""
+
+from __future__ import annotations
+
+import io
+import json
+from pathlib import Path
+
+import openpyxl
+import pytest
+from click.testing import CliRunner
+
+from server.calc.projectfile import dump_project, load_project_file
+from server.commands.sheets import export_sheet, import_sheet
+from server.config import Settings
+from server.db.migrate import upgrade
+from server.db.session import make_engine, make_sessionmaker
+from server.services import Services
+from tests.helpers import DEMO_FILE
+from tests.unit.sheets.conftest import messy_xlsx
+from tests.unit.sheets.test_limits import zip_bomb
+
+
+@pytest.fixture
+def store(tmp_path: Path, monkeypatch: pytest.MonkeyPatch):
+    url = f"sqlite:///{tmp_path / 'pw.db'}"
+    upgrade(url)
+    monkeypatch.setenv("PANELWRIGHT_DATABASE_URL", url)
+    monkeypatch.delenv("PANELWRIGHT_MAX_UPLOAD_MB", raising=False)
+    services = Services(make_sessionmaker(make_engine(Settings(database_url=url))), cache_size=0)
+    project = load_project_file(DEMO_FILE)
+    pid = services.create_project(dump_project(project))
+    return services, pid, project.project.number
+
+
+def _run(cmd, args):
+    return CliRunner().invoke(cmd, args, catch_exceptions=False)
+
+
+def _leaf(services, pid):
+    model = services.snapshot(pid).model
+    return next(p for p in model.panels if not any(c.feeds for c in p.circuits) and "Y/" in p.system)
+
+
+def test_export_then_import_round_trip(store, tmp_path):
+    services, pid, number = store
+    out = tmp_path / "set.xlsx"
+    res = _run(export_sheet, [number, "--out", str(out)])
+    assert res.exit_code == 0, res.output
+    assert "engineer of record" in res.output
+    before = services.snapshot(pid)
+    leaf = _leaf(services, pid)
+    res = _run(import_sheet, [str(out), "--project", number, "--panel", leaf.tag, "--sheet", leaf.tag, "--yes"])
+    assert res.exit_code == 0, res.output
+    after = services.snapshot(pid)
+    assert after.model == before.model  # same circuits back
+    assert after.data_version == before.data_version + 1
+
+    csv_out = tmp_path / "set.csv"
+    assert _run(export_sheet, [str(pid), "--out", str(csv_out)]).exit_code == 0
+    assert (tmp_path / "set-summary.csv").read_text(encoding="utf-8-sig").startswith("Panel,")
+    res = _run(import_sheet, [str(csv_out), "--project", number, "--yes"])  # every panel via the Panel column
+    assert res.exit_code == 0, res.output
+    assert services.snapshot(pid).model == before.model
+
+    json_out = tmp_path / "set.json"
+    assert _run(export_sheet, [number, "--out", str(json_out)]).exit_code == 0
+    assert json.loads(json_out.read_text())["format"] == "panelwright.project"
+
+
+def test_messy_sheet_preview_writes_nothing_then_yes_writes(store, tmp_path):
+    services, pid, number = store
+    leaf = _leaf(services, pid)
+    path = tmp_path / "messy.xlsx"
+    path.write_bytes(messy_xlsx())
+    version = services.snapshot(pid).data_version
+    res = _run(import_sheet, [str(path), "--project", number, "--panel", leaf.tag])
+    assert res.exit_code == 0, res.output
+    assert "preview only: nothing was written" in res.output
+    assert "totals row" in res.output
+    assert services.snapshot(pid).data_version == version
+    res = _run(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--yes"])
+    assert res.exit_code == 0, res.output
+    panel = services.snapshot(pid).model.panel(leaf.tag)
+    assert [c.slot for c in panel.circuits] == [1, 2, 3, 4, 5, 8, 11]
+    assert panel.circuit_at(5).va == 9600.0 and panel.circuit_at(5).poles == 3
+
+
+def _formula_sheet() -> bytes:
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["Ckt", "Description", "VA"])
+    ws.append([1, "Heater", "=1000*2"])
+    buf = io.BytesIO()
+    wb.save(buf)
+    return buf.getvalue()
+
+
+@pytest.mark.parametrize(
+    ("name", "content", "message"),
+    [
+        ("notes.xlsx", b"just some text", "is not an XLSX workbook"),
+        ("bomb.xlsx", None, "zip bomb"),
+        ("formula.xlsx", "formula", "formulas are never evaluated"),
+        ("big.csv", "big", "uploads are limited to"),
+        ("macro.xlsm", "messy", "macro-enabled"),
+    ],
+)
+def test_bad_files_get_clear_errors_and_write_nothing(store, tmp_path, monkeypatch, name, content, message):
+    services, pid, number = store
+    leaf = _leaf(services, pid)
+    if content is None:
+        content = zip_bomb(200)
+    elif content == "formula":
+        content = _formula_sheet()
+    elif content == "messy":
+        content = messy_xlsx()
+    elif content == "big":
+        monkeypatch.setenv("PANELWRIGHT_MAX_UPLOAD_MB", "1")
+        content = b"Ckt,Description,VA\n" + b"1,x,1\n" * 200_000
+    path = tmp_path / name
+    path.write_bytes(content)
+    before = services.snapshot(pid)
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--yes"])
+    assert res.exit_code == 2
+    assert message in res.stderr
+    assert name in res.stderr
+    assert "Traceback" not in res.output
+    after = services.snapshot(pid)
+    assert after.data_version == before.data_version and after.model == before.model
+
+
+def test_unknown_project_panel_and_bad_mapping(store, tmp_path):
+    services, pid, number = store
+    path = tmp_path / "m.xlsx"
+    path.write_bytes(messy_xlsx())
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", "NOPE", "--panel", "LP-1"])
+    assert res.exit_code == 2 and "no project with number or id 'NOPE'" in res.stderr
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", "ZZ-9"])
+    assert res.exit_code == 2 and "has no panel 'ZZ-9'" in res.stderr
+    leaf = _leaf(services, pid)
+    res = CliRunner().invoke(
+        import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--mapping", '{"columns": {"E": "watts"}}']
+    )
+    assert res.exit_code == 2 and "'watts'" not in res.stderr and '"watts" is not a role' in res.stderr
+    # a mapping correction that changes the result: E as VA instead of kVA
+    res = CliRunner().invoke(
+        import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--mapping", '{"columns": {"E": "va"}}']
+    )
+    assert res.exit_code == 0, res.output
+    rtu = next(line for line in res.output.splitlines() if "RTU-1" in line)
+    assert "9,600" not in rtu and " 10 " in rtu  # 9.6 read as VA (shown rounded), not 9.6 kVA
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", leaf.tag])
+    rtu = next(line for line in res.output.splitlines() if "RTU-1" in line)
+    assert "9,600" in rtu
+
+
+def test_errors_in_rows_refuse_the_write(store, tmp_path):
+    services, pid, number = store
+    leaf = _leaf(services, pid)
+    path = tmp_path / "clash.csv"
+    path.write_text("Ckt,Description,Poles,VA\n1,Big,3,3000\n3,Clash,1,500\n", encoding="utf-8")
+    before = services.snapshot(pid)
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--yes"])
+    assert res.exit_code == 2
+    assert (
+        f"clash.csv, sheet 'clash', row 3, panel {leaf.tag}, slot 3, slot: the breakers at slots 1 and 3 overlap"
+        in res.stderr
+    )
+    assert "nothing was written" in res.stderr
+    assert services.snapshot(pid).model == before.model
