@@ -12,7 +12,9 @@ Tables (NFPA 70; numbers per edition in ``tables/code_sections.json``, values fr
   raceway (common practice; so the adjustment counts one set's conductors);
 * Table 250.122 equipment grounding conductor, increased in proportion to the phase
   conductors' circular mils when they are upsized for voltage drop (250.122(B)); in
-  parallel runs a full-size EGC in each raceway (250.122(F)).
+  parallel runs a full-size EGC in each raceway (250.122(F)).  The increase is taken per
+  raceway: EGC area × (chosen per-set phase area / per-set area the ampacity alone needed),
+  never larger than the phase conductors (250.122(A)).
 
 Design current (from the engine) already holds 125 % of the continuous load
 (215.2(A)(1)); the conductor's ampacity after correction and adjustment must be at least

@@ -137,6 +137,16 @@ def test_noncoincident_cooling_larger_keeps_cooling_as_largest_motor() -> None:
     assert_close(result.demand_va, 12_000.0 + 3_000.0 + 0.25 * 6_000.0)
 
 
+def test_noncoincident_tie_keeps_cooling() -> None:
+    # NFPA 70-2023 220.60 lets either of two equal noncoincident loads be omitted; the program keeps cooling
+    # (documented choice) so its compressor still counts for the 25 % largest-motor rule.
+    result = apply_demand(
+        _inp({"heating": 6_000.0, "cooling": 6_000.0}, cooling=6_000.0), code=NEC23, occupancy=Occupancy.OFFICE
+    )
+    assert _step(result, "heating").demand_va == 0.0
+    assert_close(result.demand_va, 6_000.0 + 1_500.0)
+
+
 def test_no_motor_no_motor_step() -> None:
     result = apply_demand(_inp({"lighting": 1000.0}), code=NEC23, occupancy=Occupancy.OFFICE)
     assert [s.category for s in result.steps] == ["lighting"]
