@@ -198,6 +198,13 @@ def _fmt(x: float) -> str:
     return f"{x:g}"
 
 
+def conductor_sizes_for(material: Material) -> tuple[str, ...]:
+    """Sizes Table 310.16 lists for ``material`` (no 14 AWG aluminium)."""
+    from .tables import ampacity_a, conductor_sizes
+
+    return tuple(s for s in conductor_sizes() if ampacity_a(s, material, 75) is not None)
+
+
 def _parse_feeder(raw: Any, problems: list[Problem], tag: str) -> Feeder:
     if raw is None:
         return Feeder()
@@ -220,9 +227,13 @@ def _parse_feeder(raw: Any, problems: list[Problem], tag: str) -> Feeder:
     if terminal not in (60, 75):
         r.add("terminal_c", "must be 60 or 75 (°C terminal rating, NEC 110.14(C))")
         terminal = 75
+    material = r.choice("material", Material, Material.CU) or Material.CU
+    for name, value in (("size", size), ("neutral_size", neutral)):
+        if value is not None and value not in conductor_sizes_for(material):
+            r.add(name, f"{value} {material.value} has no row in NEC Table 310.16; use a larger size")
     return Feeder(
         length_ft=r.number("length_ft", 0.0, minimum=0.0, maximum=100_000.0) or 0.0,
-        material=r.choice("material", Material, Material.CU) or Material.CU,
+        material=material,
         conduit=r.choice("conduit", Conduit, Conduit.STEEL) or Conduit.STEEL,
         sets=r.integer("sets", None, minimum=1, maximum=20),
         size=size,
