@@ -38,7 +38,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 from . import demand as _demand
 from . import faults as _faults
@@ -47,7 +47,6 @@ from . import transformers as _xf
 from . import voltage_drop as _vd
 from .errors import Problem, ProjectFileError, SizingError
 from .loads import (
-    conj_power,
     current_coefficients,
     imbalance_pct,
     load_amps,
@@ -60,7 +59,18 @@ from .loads import (
     triplens_pass,
     winding_connection,
 )
-from .model import Category, Circuit, Panel, Project, Source, Status, Transformer
+from .model import (
+    CONTINUOUS_BY_DEFAULT,
+    DEFAULT_PF,
+    DEFAULT_PF_OTHER,
+    Category,
+    Circuit,
+    Panel,
+    Project,
+    Source,
+    Status,
+    Transformer,
+)
 from .projectfile import check_panel, check_topology, replace_panel
 from .results import (
     CalcWarning,
@@ -85,11 +95,26 @@ HARMONIC_DOMINANT_SHARE = 0.5
 #: share of the panel's connected VA a 208Y/120 system is usually the better choice.
 HIGH_LEG_LN_SHARE = 0.5
 
-_SEVERITY_RANK = {Severity.ERROR: 0, Severity.WARNING: 1, Severity.NOTE: 2}
+_SEVERITY_ORDER = (Severity.ERROR, Severity.WARNING, Severity.NOTE)
+_SEVERITY_RANK = {sev: i for i, sev in enumerate(_SEVERITY_ORDER)}
 _KITCHEN = Category.KITCHEN.value
 _MOTOR = Category.MOTOR.value
 _COOLING = Category.COOLING.value
 _SPARE = Category.SPARE
+
+
+def _evolve(obj, **changes):
+    """A copy of a frozen result dataclass with ``changes`` applied.
+
+    Same outcome as :func:`dataclasses.replace` for these plain result classes (no
+    ``__post_init__``, no init-only fields), without re-running ``__init__``: the top-down
+    pass re-issues many results after one edit, and this keeps it cheap.
+    """
+    new = object.__new__(type(obj))
+    d = new.__dict__
+    d.update(obj.__dict__)
+    d.update(changes)
+    return new
 
 
 def sort_warnings(warnings: Iterable[CalcWarning]) -> tuple[CalcWarning, ...]:
@@ -245,8 +270,11 @@ class _Node:
         "up",
         "local",
         "z_bus",
+        "cum_vd",
+        "bus_changed",
         "final",
         "final_key",
+        "final_by_severity",
     )
 
     def __init__(self, kind: str, element: Source | Transformer | Panel, spec: SystemSpec) -> None:
@@ -269,8 +297,11 @@ class _Node:
         self.up: _Agg | None = None
         self.local: _Local | None = None
         self.z_bus = 0j
+        self.cum_vd = 0.0
+        self.bus_changed = True
         self.final: object | None = None
         self.final_key: tuple | None = None
+        self.final_by_severity: tuple[tuple[CalcWarning, ...], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -279,16 +310,63 @@ class _Local:
 
     result: PanelResult | TransformerResult | SourceResult
     feeder: FeederResult | None  # cumulative drop still = own drop
-    warnings: tuple[CalcWarning, ...]  # excluding the top-down ones
+    warnings: tuple[CalcWarning, ...]  # sorted; excluding the top-down ones
+    z_feeder: complex = 0j  # one-way impedance of one phase conductor run (ohms)
 
 
 # --------------------------------------------------------------------------- own circuits
 
 
+class _SlotInfo:
+    """Everything about a breaker position that does not depend on its load (cached per system)."""
+
+    __slots__ = ("slots", "phases", "shares", "coefs", "inv_v", "ln_phase", "ln_rot")
+
+    def __init__(self, spec: SystemSpec, slot: int, poles: int) -> None:
+        self.slots = breaker_slots(slot, poles)
+        self.shares = phase_shares(spec, slot, poles)
+        self.phases = tuple(p for p, _ in self.shares)
+        self.coefs = current_coefficients(spec, slot, poles)
+        self.inv_v = load_amps(spec, poles, 1.0)  # amps per VA
+        self.ln_phase = self.phases[0] if poles == 1 else None
+        self.ln_rot = triplen_rotation(spec, self.ln_phase) if self.ln_phase is not None else 0j
+
+
+_SLOT_INFO: dict[str, dict[tuple[int, int], _SlotInfo]] = {}
+
+
+def _slot_info(spec: SystemSpec) -> dict[tuple[int, int], _SlotInfo]:
+    table = _SLOT_INFO.get(spec.name)
+    if table is None:
+        table = _SLOT_INFO[spec.name] = {}
+    return table
+
+
+def _circuit_result(slot, slots, phases, phase_va, amps, counted, load_va) -> CircuitResult:
+    """A CircuitResult built without the frozen-dataclass __init__ (one per circuit: 21 000 in a
+    large project); identical to ``CircuitResult(...)``."""
+    r = object.__new__(CircuitResult)
+    r.__dict__.update(
+        slot=slot, slots=slots, phases=phases, phase_va=phase_va, amps=amps, counted=counted, load_va=load_va
+    )
+    return r
+
+
+_REMOVED = Status.REMOVED
+_FUTURE = Status.FUTURE
+_CONTINUOUS_DEFAULT = frozenset(c.value for c in CONTINUOUS_BY_DEFAULT)
+_DEFAULT_PF = {c.value: pf for c, pf in DEFAULT_PF.items()}
+
+
 def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
-    """Step 1 for a panel: its own (non-feeding) circuits."""
+    """Step 1 for a panel: its own (non-feeding) circuits.
+
+    Same arithmetic as :func:`server.calc.loads.circuit_currents` and friends, with the
+    per-slot phasor coefficients looked up once per (system, slot, poles).
+    """
     panel: Panel = node.element  # type: ignore[assignment]
     spec = node.spec
+    info = _slot_info(spec)
     agg = _Agg(spec.phases)
     results: list[CircuitResult] = []
     warnings: list[CalcWarning] = []
@@ -299,6 +377,8 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
     line_i3 = agg.line_i3
     by_cat = agg.by_cat
     cont_by_cat = agg.cont_by_cat
+    p_w = q_var = h3_va = h3_ln_va = 0.0
+    n3 = 0j
     for c in panel.circuits:
         poles = c.poles
         if poles == 0:
@@ -307,26 +387,22 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
         if c.feeds is not None:
             continue
         slot = c.slot
+        si = info.get((slot, poles))
+        if si is None:
+            si = info[(slot, poles)] = _SlotInfo(spec, slot, poles)
         cat = c.category
-        if cat is _SPARE:
+        catv = "equipment" if cat is None else cat.value
+        if catv == "spare":
             spare_breakers += 1
         va = c.va or 0.0
-        shares = phase_shares(spec, slot, poles)
-        amps = load_amps(spec, poles, va)
-        counted = c.counts(include_future)
-        results.append(
-            CircuitResult(
-                slot=slot,
-                slots=breaker_slots(slot, poles),
-                phases=tuple(p for p, _ in shares),
-                phase_va={p: va * s for p, s in shares},
-                amps=amps,
-                counted=counted,
-                load_va=va,
-            )
-        )
-        if c.breaker_amps is not None and va > 0 and c.status is not Status.REMOVED:
-            cont = c.effective_continuous
+        amps = va * si.inv_v
+        status = c.status
+        counted = status is not _REMOVED and (include_future or status is not _FUTURE)
+        results.append(_circuit_result(slot, si.slots, si.phases, {p: va * s for p, s in si.shares}, amps, counted, va))
+        cont = c.continuous
+        if cont is None:
+            cont = catv in _CONTINUOUS_DEFAULT
+        if c.breaker_amps is not None and va > 0 and status is not _REMOVED:
             need = amps * (CONTINUOUS_FACTOR if cont else 1.0)
             if c.breaker_amps < need - 1e-9:
                 what = "125 % of its continuous load" if cont else "its load"
@@ -342,9 +418,8 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
                 )
         if not counted or va <= 0.0:
             continue
-        catv = cat.value if cat is not None else "equipment"
         by_cat[catv] = by_cat.get(catv, 0.0) + va
-        if c.effective_continuous:
+        if cont:
             cont_by_cat[catv] = cont_by_cat.get(catv, 0.0) + va
         if catv == _KITCHEN:
             agg.add_kitchen(va)
@@ -353,28 +428,37 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
                 agg.largest_motor = va
         elif catv == _COOLING and va > agg.largest_cooling:
             agg.largest_cooling = va
-        for p, s in shares:
+        for p, s in si.shares:
             phase_va[p] += va * s
-        pf = c.effective_pf
-        s_conj = conj_power(va, pf)
-        agg.p_w += s_conj.real
-        agg.q_var -= s_conj.imag
-        for p, k in current_coefficients(spec, slot, poles):
+        pf = c.pf
+        if pf is None:
+            pf = _DEFAULT_PF.get(catv, DEFAULT_PF_OTHER)
+        # conj(S) = VA · (pf − j·sin φ), lagging (server.calc.loads.conj_power)
+        q = va * math.sqrt(max(0.0, 1.0 - pf * pf))
+        s_conj = complex(va * pf, -q)
+        p_w += va * pf
+        q_var += q
+        for p, k in si.coefs:
             line_i[p] += s_conj * k
         h3 = c.harmonic3_pct
         if h3 > 0.0:
             i3 = amps * h3 / 100.0
-            agg.h3_va += va * h3 / 100.0
+            h3_va += va * h3 / 100.0
             if poles == 1:
-                p = shares[0][0]
+                p = si.ln_phase
                 line_i3[p] += i3
-                agg.neutral_i3 += i3 * triplen_rotation(spec, p)
-                agg.h3_ln_va += va
+                n3 += i3 * si.ln_rot
+                h3_ln_va += va
             elif poles == 2:
                 # Line-to-line: the triplen current flows out one line and back the other.
-                for p, _ in shares:
+                for p in si.phases:
                     line_i3[p] += i3
             # 3-pole: balanced triplens are zero sequence with no return path in a 3-wire load.
+    agg.p_w = p_w
+    agg.q_var = q_var
+    agg.h3_va = h3_va
+    agg.h3_ln_va = h3_ln_va
+    agg.neutral_i3 = n3
     free = panel.spaces - used
     if free <= 0 and spare_breakers == 0:
         warnings.append(
@@ -447,6 +531,7 @@ class Calculator:
         if len(self.order) != len(self.nodes):
             missing = sorted(set(self.nodes) - {n.tag for n in self.order})
             raise ProjectFileError([Problem("is not connected to any source (feed loop?)", t) for t in missing])
+        self.by_tag = sorted(self.order, key=lambda n: n.tag)
         for n in self.order:
             if n.kind == "transformer":
                 self._wire_transformer(n)
@@ -712,7 +797,7 @@ class Calculator:
             fed_from=node.parent.tag if node.parent else None,
             ancestors=self._ancestors(node),
         )
-        return _Local(result, feeder, tuple(warnings))
+        return _Local(result, feeder, sort_warnings(warnings), self._feeder_z(feeder))
 
     def _ln_va(self, panel: Panel) -> Iterable[tuple[Circuit, float]]:
         for c in panel.circuits:
@@ -856,7 +941,7 @@ class Calculator:
             fed_from=parent.tag,
             ancestors=self._ancestors(node),
         )
-        return _Local(result, feeder, tuple(warnings))
+        return _Local(result, feeder, sort_warnings(warnings), self._feeder_z(feeder))
 
     def _local_source(self, node: _Node) -> _Local:
         s: Source = node.element  # type: ignore[assignment]
@@ -879,42 +964,56 @@ class Calculator:
     # ---- step 4: top-down pass
 
     def _top_down(self) -> None:
+        """Cumulative voltage drop and fault current, parents first.
+
+        A node is revisited only when its own local result or its parent's bus values
+        (cumulative drop, impedance) changed, so an incremental update touches the edited
+        branch and whatever hangs below a feeder whose drop moved.
+        """
         info = self.project.project
         limit = info.vd_total_pct
-        cum: dict[str, float] = {}
         for node in self.order:
             local = node.local
             assert local is not None
-            if node.kind == "source":
+            parent = node.parent
+            prev = node.final_key
+            if parent is None:
+                if prev is not None and prev[0] is local:
+                    node.bus_changed = False
+                    continue
                 s: Source = node.element  # type: ignore[assignment]
                 spec = node.spec
                 v = spec.nominal_v_ll() if spec.three_phase else spec.nominal_v_ll() * SQRT3
                 # Single-phase source: the loop impedance V/I_sc (source_impedance divides by √3).
-                node.z_bus = _faults.source_impedance(v, s.fault_ka, s.x_over_r)
-                cum[node.tag] = 0.0
-                if node.final_key is None or node.final_key[0] is not local:
-                    node.final = local.result
-                    node.final_key = (local,)
+                z = _faults.source_impedance(v, s.fault_ka, s.x_over_r)
+                node.bus_changed = prev is None or z != node.z_bus
+                node.z_bus = z
+                node.cum_vd = 0.0
+                node.final = local.result
+                node.final_key = (local,)
+                node.final_by_severity = ()
                 continue
-            parent = node.parent
-            assert parent is not None
-            upstream = cum[parent.tag]
+            if prev is not None and prev[0] is local and not parent.bus_changed:
+                node.bus_changed = False
+                continue
             feeder = local.feeder
-            own_vd = feeder.voltage_drop_pct if feeder is not None else 0.0
-            total_vd = upstream + own_vd
-            cum[node.tag] = total_vd
-            z_feeder = self._feeder_z(feeder) if feeder is not None else 0j
+            total_vd = parent.cum_vd + (feeder.voltage_drop_pct if feeder is not None else 0.0)
             if node.kind == "panel":
-                loop = 1.0 if node.spec.three_phase else 2.0
-                node.z_bus = parent.z_bus + loop * z_feeder
+                z = parent.z_bus + local.z_feeder * (1.0 if node.spec.three_phase else 2.0)
             else:
-                node.z_bus = self._secondary_z(node, parent.z_bus, z_feeder)
-            fault = _faults.bolted_fault_ka(node.z_bus, node.spec)
-            fault_ka = None if math.isinf(fault) else fault
-            prev = node.final_key
-            if prev is not None and prev[0] is local and prev[1] == total_vd and prev[2] == fault_ka:
+                z = self._secondary_z(node, parent.z_bus, local.z_feeder)
+            if prev is not None and prev[0] is local and prev[1] == total_vd and z == node.z_bus:
+                node.bus_changed = False
                 continue
-            node.final_key = (local, total_vd, fault_ka)
+            node.bus_changed = True
+            node.cum_vd = total_vd
+            if prev is not None and z == node.z_bus and prev[3] is not None:
+                fault_ka = prev[2]
+            else:
+                fault = _faults.bolted_fault_ka(z, node.spec)
+                fault_ka = None if math.isinf(fault) else fault
+            node.z_bus = z
+            node.final_key = (local, total_vd, fault_ka, True)
             extra: list[CalcWarning] = []
             tag = node.tag
             if feeder is not None and total_vd > limit + 1e-9:
@@ -926,7 +1025,7 @@ class Calculator:
                         tag,
                     )
                 )
-            new_feeder = replace(feeder, cumulative_voltage_drop_pct=total_vd) if feeder is not None else None
+            new_feeder = _evolve(feeder, cumulative_voltage_drop_pct=total_vd) if feeder is not None else None
             if node.kind == "panel":
                 panel: Panel = node.element  # type: ignore[assignment]
                 if panel.sccr_ka is not None and fault_ka is not None and fault_ka > panel.sccr_ka + 1e-9:
@@ -940,23 +1039,21 @@ class Calculator:
                             Severity.ERROR,
                         )
                     )
-                node.final = replace(
+                warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
+                node.final = _evolve(
                     local.result,
                     feeder=new_feeder,
                     fault_ka=fault_ka,
-                    fault_x_over_r=_faults.x_over_r(node.z_bus),
-                    warnings=sort_warnings([*local.warnings, *extra]),
+                    fault_x_over_r=_faults.x_over_r(z),
+                    warnings=warnings,
                 )
             else:
-                node.final = replace(
-                    local.result,
-                    feeder=new_feeder,
-                    secondary_fault_ka=fault_ka,
-                    warnings=sort_warnings([*local.warnings, *extra]),
-                )
+                warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
+                node.final = _evolve(local.result, feeder=new_feeder, secondary_fault_ka=fault_ka, warnings=warnings)
+            node.final_by_severity = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
 
-    def _feeder_z(self, feeder: FeederResult) -> complex:
-        if feeder.length_ft <= 0:
+    def _feeder_z(self, feeder: FeederResult | None) -> complex:
+        if feeder is None or feeder.length_ft <= 0:
             return 0j
         return _vd.feeder_impedance_ohm(
             feeder.conductor, feeder.material, feeder.conduit, feeder.length_ft, feeder.sets
@@ -989,24 +1086,29 @@ class Calculator:
         panels: dict[str, PanelResult] = {}
         transformers: dict[str, TransformerResult] = {}
         sources: dict[str, SourceResult] = {}
-        warnings: list[CalcWarning] = []
+        nodes = self.nodes
         for p in self.project.panels:
-            r = self.nodes[p.tag].final
-            panels[p.tag] = r  # type: ignore[assignment]
-            warnings.extend(r.warnings)  # type: ignore[union-attr]
+            panels[p.tag] = nodes[p.tag].final  # type: ignore[assignment]
         for t in self.project.transformers:
-            r = self.nodes[t.tag].final
-            transformers[t.tag] = r  # type: ignore[assignment]
-            warnings.extend(r.warnings)  # type: ignore[union-attr]
+            transformers[t.tag] = nodes[t.tag].final  # type: ignore[assignment]
         for s in self.project.sources:
-            sources[s.tag] = self.nodes[s.tag].final  # type: ignore[assignment]
+            sources[s.tag] = nodes[s.tag].final  # type: ignore[assignment]
+        # Every node's warnings carry its own tag and are already sorted, so the project list
+        # (severity, then tag, slot, code) is a concatenation in (severity, tag) order.
+        warnings: list[CalcWarning] = []
+        by_tag = self.by_tag
+        for rank in range(len(_SEVERITY_ORDER)):
+            for node in by_tag:
+                groups = node.final_by_severity
+                if groups and groups[rank]:
+                    warnings.extend(groups[rank])
         self._result = ProjectResult(
             code=self.code.value,
             include_future=self.include_future,
             panels=panels,
             transformers=transformers,
             sources=sources,
-            warnings=sort_warnings(warnings),
+            warnings=tuple(warnings),
         )
 
     # ---- public API
