@@ -70,7 +70,7 @@ DEMAND_WINDOW_S = 15 * 60
 ONE_YEAR_DAYS = 365.0
 MIN_ALTERNATIVE_DAYS = 30.0
 DEFAULT_PF = 0.9
-RULE = "NFPA 70-2023 220.87 (same in 2020; from memory)"
+RULE = "NFPA 70-2023 220.87 (from memory; 2020 reads the same)"
 
 _EPOCH = datetime(1970, 1, 1)
 _EPOCH_DATE = date(1970, 1, 1)
@@ -1024,8 +1024,8 @@ def _analyze(
         basis = Basis.ONE_YEAR
         basis_kva: float | None = peak_kva
         message = (
-            f"Maximum demand over {coverage_days:.1f} days (one year or more) × 125 % ({RULE}): "
-            f"{peak_kva:.1f} kVA × 1.25 = {peak_kva * EXISTING_LOAD_FACTOR:.1f} kVA"
+            f"One year or more recorded ({coverage_days:.1f} days): maximum demand {peak_kva:.1f} kVA × 1.25 = "
+            f"{peak_kva * EXISTING_LOAD_FACTOR:.1f} kVA existing load; {RULE}"
         )
     elif coverage_days >= MIN_ALTERNATIVE_DAYS:
         basis = Basis.THIRTY_DAY
@@ -1037,8 +1037,8 @@ def _analyze(
             basis_kva = peak_kva
             basis_txt = f"{peak_kva:.1f} kVA"
         message = (
-            f"Less than a year recorded ({coverage_days:.1f} days): 30-day alternative of {RULE} Exception: "
-            f"{basis_txt} × 1.25 = {basis_kva * EXISTING_LOAD_FACTOR:.1f} kVA"
+            f"Less than a year recorded ({coverage_days:.1f} days): 30-day alternative, {basis_txt} × 1.25 = "
+            f"{basis_kva * EXISTING_LOAD_FACTOR:.1f} kVA existing load; {RULE}, Exception"
         )
         notes.append(
             "30-day alternative: confirm the recording was made while the building was occupied, on the highest "
@@ -1049,8 +1049,8 @@ def _analyze(
         basis = Basis.INSUFFICIENT
         basis_kva = None
         message = (
-            f"Only {coverage_days:.1f} days recorded: {RULE} needs one year of maximum demand data, or at least "
-            "30 days under its Exception. No existing load computed; record longer or calculate the load."
+            f"Only {coverage_days:.1f} days recorded: 220.87 needs one year of maximum demand data, or at least "
+            f"30 days under its Exception ({RULE}). No existing load computed; record longer or calculate the load."
         )
     existing = None if basis_kva is None else basis_kva * EXISTING_LOAD_FACTOR
     if basis != Basis.INSUFFICIENT:
