@@ -21,7 +21,7 @@ from server.config import Settings
 from server.db.migrate import ensure_migrated
 from server.db.session import make_engine, make_sessionmaker
 from server.services import Conflict, NotFound, ServiceError, Services
-from server.web.routes import api, panels, projects, transformers, tree, warnings
+from server.web.routes import api, panels, projects, sheets, transformers, tree, warnings
 from server.web.templating import STATIC_DIR, make_templates
 from server.web.views import Page
 
@@ -45,7 +45,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.services = Services(make_sessionmaker(engine), cache_size=settings.calc_cache_size)
     app.state.templates = make_templates()
     app.mount("/static", StaticFiles(directory=str(STATIC_DIR)), name="static")
-    for module in (projects, tree, panels, transformers, warnings, api):
+    for module in (projects, tree, panels, transformers, warnings, sheets, api):
         app.include_router(module.router)
     if settings.bench_endpoints:
         from server.web.routes import bench

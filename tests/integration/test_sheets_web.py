@@ -1,0 +1,207 @@
+"""The spreadsheet screens over HTTP: upload, mapping corrections (htmx), preview, confirm, refusals, exports.
+
+Reuses the web tests' fixtures (a migrated SQLite database per test, PostgreSQL too when
+``PANELWRIGHT_TEST_PG_URL`` is set, the app and a TestClient, the demo project).
+"""
+
+from __future__ import annotations
+
+import io
+import re
+
+import openpyxl
+import pytest
+
+from server.commands import CAUTION
+from server.sheets.uploads import UploadStore
+from tests.integration.web import conftest as _web
+from tests.integration.web.conftest import htmx
+from tests.integration.web.html import parse
+from tests.unit.sheets.conftest import messy_xlsx
+from tests.unit.sheets.test_limits import zip_bomb
+
+# The web tests' fixtures, shared: a migrated database per test (SQLite; PostgreSQL when configured),
+# the app, its TestClient and the demo project.
+_sqlite_template = _web._sqlite_template
+_pg_database = _web._pg_database
+db_url = _web.db_url
+app = _web.app
+client = _web.client
+demo_data = _web.demo_data
+demo_id = _web.demo_id
+
+
+@pytest.fixture(autouse=True)
+def _private_uploads(app, tmp_path):
+    app.state.sheet_uploads = UploadStore(tmp_path / "uploads")
+
+
+def _leaf(app, pid):
+    model = app.state.services.snapshot(pid).model
+    return next(p for p in model.panels if not any(c.feeds for c in p.circuits) and "Y/" in p.system)
+
+
+def _upload(client, pid, name, data, target):
+    return client.post(
+        f"/projects/{pid}/sheets/upload",
+        data={"target": target},
+        files={"file": (name, data, "application/octet-stream")},
+        follow_redirects=False,
+    )
+
+
+def _form_of(html: str) -> dict[str, str]:
+    """The values the mapping form would submit (inputs and selected options)."""
+    doc = parse(html)
+    form = doc.by_id("import-form")
+    values: dict[str, str] = {}
+    for node in form.iter():
+        name = node.attrs.get("name")
+        if not name:
+            continue
+        if node.tag == "input":
+            values[name] = node.attrs.get("value", "")
+        elif node.tag == "select":
+            chosen = [o for o in node.find_all("option") if "selected" in o.attrs]
+            values[name] = (chosen[0] if chosen else node.find("option")).attrs.get("value", "")
+    return values
+
+
+def _preview_row(html: str, slot: int):
+    doc = parse(html)
+    return doc.find("tr", data_slot=str(slot))
+
+
+def test_upload_correct_a_column_confirm(client, app, demo_id):
+    leaf = _leaf(app, demo_id)
+    r = _upload(client, demo_id, "messy.xlsx", messy_xlsx(), leaf.tag)
+    assert r.status_code == 303
+    work = r.headers["location"]
+    page = client.get(work)
+    assert page.status_code == 200
+    assert CAUTION in parse(page.text).by_id("caution").text
+    rtu = _preview_row(page.text, 5)
+    assert rtu.find("td", data_field="va").text == "9,600"  # kVA column guessed
+    form = _form_of(page.text)
+    assert form["plan-0-col-4"] == "kva"
+    # nothing written yet
+    version = app.state.services.snapshot(demo_id).data_version
+    # the user says column E is VA: the htmx preview shows 10 VA (9.6 rounded) for the same row
+    form["plan-0-col-4"] = "va"
+    token = work.split("/imports/")[1].split("?")[0]
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/preview", data=form, headers=htmx("plan-0-col-4"))
+    assert r.status_code == 200 and 'id="import-work"' in r.text and "<html" not in r.text
+    assert _preview_row(r.text, 5).find("td", data_field="va").text == "10"
+    # and back to kVA, then confirm
+    form = _form_of(r.text)
+    form["plan-0-col-4"] = "kva"
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=form, follow_redirects=False)
+    assert r.status_code == 303 and r.headers["location"].endswith(f"/panels/{leaf.tag}")
+    snap = app.state.services.snapshot(demo_id)
+    assert snap.data_version == version + 1
+    panel = snap.model.panel(leaf.tag)
+    assert [c.slot for c in panel.circuits] == [1, 2, 3, 4, 5, 8, 11]
+    assert panel.circuit_at(5).va == 9600.0
+    # the held upload is gone once confirmed
+    assert client.get(work).status_code == 404
+
+
+def test_preview_marks_problem_cells_and_refuses_to_commit(client, app, demo_id):
+    leaf = _leaf(app, demo_id)
+    data = b'Ckt,Description,Poles,VA,Type\n1,Big,3,3000,Lighting\n3,"<script>window.x=1</script>",1,500,Gizmo\n'
+    r = _upload(client, demo_id, "clash.csv", data, leaf.tag)
+    page = client.get(r.headers["location"])
+    row = _preview_row(page.text, 3)
+    assert "mark-error" in row.find("td", data_field="slot").attrs["class"]
+    assert "mark-warning" in row.find("td", data_field="category").attrs["class"]
+    assert "overlap" in row.find("td", class_="problems").text
+    assert "<script>window.x=1</script>" not in page.text  # autoescaped
+    assert "&lt;script&gt;window.x=1&lt;/script&gt;" in page.text
+    confirm = parse(page.text).by_id("confirm-import")
+    assert "disabled" in confirm.attrs
+    before = app.state.services.snapshot(demo_id)
+    token = r.headers["location"].split("/imports/")[1].split("?")[0]
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=_form_of(page.text))
+    assert r.status_code == 422 and "Not written: 1 errors" in r.text
+    after = app.state.services.snapshot(demo_id)
+    assert after.data_version == before.data_version and after.model == before.model
+
+
+def test_commit_after_someone_else_changed_the_project_writes_nothing(client, app, demo_id):
+    leaf = _leaf(app, demo_id)
+    r = _upload(client, demo_id, "m.xlsx", messy_xlsx(), leaf.tag)
+    page = client.get(r.headers["location"])
+    form = _form_of(page.text)
+    other = next(p for p in app.state.services.snapshot(demo_id).model.panels if p.tag != leaf.tag)
+    app.state.services.update_panel(demo_id, other.tag, {"location": "Moved meanwhile"})
+    token = r.headers["location"].split("/imports/")[1].split("?")[0]
+    before = app.state.services.snapshot(demo_id)
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=form)
+    assert r.status_code == 409 and "changed after this preview" in r.text
+    assert app.state.services.snapshot(demo_id).model == before.model
+
+
+@pytest.mark.parametrize(
+    ("name", "data", "message"),
+    [
+        ("notes.xlsx", b"plain text", "is not an XLSX workbook"),
+        ("bomb.xlsx", None, "zip bomb"),
+        ("macro.xlsm", b"PK\x03\x04", "macro-enabled"),
+    ],
+)
+def test_bad_uploads_are_refused_with_a_message(client, app, demo_id, name, data, message):
+    data = zip_bomb(200) if data is None else data
+    before = app.state.services.snapshot(demo_id)
+    r = _upload(client, demo_id, name, data, "auto")
+    assert r.status_code == 422
+    err = parse(r.text).by_id("upload-error")
+    assert err is not None and message in err.text and name in err.text
+    assert app.state.services.snapshot(demo_id).data_version == before.data_version
+
+
+def test_upload_over_the_limit(client, app, demo_id, monkeypatch):
+    monkeypatch.setenv("PANELWRIGHT_MAX_UPLOAD_MB", "0.01")
+    r = _upload(client, demo_id, "big.csv", b"Ckt,Description,VA\n" + b"1,x,1\n" * 5000, "auto")
+    assert r.status_code in (413, 422)
+    assert "uploads are limited to" in parse(r.text).by_id("upload-error").text
+
+
+def test_discard_writes_nothing(client, app, demo_id):
+    leaf = _leaf(app, demo_id)
+    r = _upload(client, demo_id, "m.xlsx", messy_xlsx(), leaf.tag)
+    token = r.headers["location"].split("/imports/")[1].split("?")[0]
+    before = app.state.services.snapshot(demo_id)
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/discard", follow_redirects=True)
+    assert r.status_code == 200 and "nothing was written" in r.text
+    assert app.state.services.snapshot(demo_id).model == before.model
+
+
+def test_exports_download_and_round_trip(client, app, demo_id):
+    r = client.get(f"/projects/{demo_id}/sheets/export.xlsx")
+    assert r.status_code == 200 and r.content.startswith(b"PK")
+    assert re.search(r'filename="26-041-schedules\.xlsx"', r.headers["content-disposition"])
+    wb = openpyxl.load_workbook(io.BytesIO(r.content))
+    assert wb.sheetnames[0] == "Summary"
+    csv = client.get(f"/projects/{demo_id}/sheets/circuits.csv")
+    assert csv.status_code == 200 and csv.text.lstrip("\ufeff").startswith("Panel,Slot,Poles")
+    summary = client.get(f"/projects/{demo_id}/sheets/summary.csv")
+    assert CAUTION in summary.text
+    # the whole-project CSV imports back unchanged (every panel, through the Panel column)
+    before = app.state.services.snapshot(demo_id)
+    up = _upload(client, demo_id, "all.csv", csv.content, "auto")
+    page = client.get(up.headers["location"])
+    token = up.headers["location"].split("/imports/")[1].split("?")[0]
+    r = client.post(
+        f"/projects/{demo_id}/sheets/imports/{token}/commit", data=_form_of(page.text), follow_redirects=False
+    )
+    assert r.status_code == 303
+    after = app.state.services.snapshot(demo_id)
+    assert after.model == before.model and after.data_version == before.data_version + 1
+
+
+def test_index_page(client, demo_id):
+    r = client.get(f"/projects/{demo_id}/sheets")
+    assert r.status_code == 200
+    doc = parse(r.text)
+    assert doc.by_id("upload-form") is not None and doc.by_id("export-xlsx") is not None
+    assert "macro-enabled workbooks (.xlsm) are refused" in r.text
