@@ -1,0 +1,149 @@
+"""The import mapping screen in a real browser: upload, fix a column, watch the preview change, confirm.
+
+Marker ``browser`` (opt-in locally with ``--browser``; always on in CI).  The app runs in-process
+under uvicorn on 127.0.0.1 (a free port), on a migrated temporary SQLite database holding the
+demo project; Playwright drives Debian's chromium.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import shutil
+import socket
+import threading
+import time
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+
+from server.config import Settings
+from server.db import migrate
+from server.web.app import create_app
+from tests.helpers import DEMO_FILE
+
+pytestmark = pytest.mark.browser
+
+CHROMIUM = "/usr/bin/chromium"
+CHROMIUM_ARGS = [
+    "--headless=new",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-dev-shm-usage",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+]
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture
+def live_app(tmp_path: Path) -> Iterator[tuple[str, object, int]]:
+    """(base URL, app, demo project id) of a server on 127.0.0.1, stopped after the test."""
+    import uvicorn
+
+    from server.sheets.uploads import UploadStore
+
+    url = f"sqlite:///{tmp_path / 'pw.db'}"
+    migrate.upgrade(url)
+    app = create_app(Settings(database_url=url))
+    app.state.sheet_uploads = UploadStore(tmp_path / "uploads")
+    pid = app.state.services.import_file(json.loads(DEMO_FILE.read_text(encoding="utf-8"))).project_id
+    port = _free_port()
+    server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    deadline = time.monotonic() + 15
+    while not server.started:
+        if time.monotonic() > deadline or not thread.is_alive():
+            pytest.fail("the test server did not start within 15 s")
+        time.sleep(0.05)
+    try:
+        yield f"http://127.0.0.1:{port}", app, pid
+    finally:
+        server.should_exit = True
+        thread.join(timeout=10)
+        app.state.engine.dispose()
+
+
+def _sheet(path: Path) -> None:
+    """A small schedule whose load column is headed "Rating": the guess leaves it unmapped."""
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    ws = wb.active
+    ws.append(["Ckt", "Description", "Rating", "Trip", "Poles"])
+    ws.append([1, "Office lights", 1.2, 20, 1])
+    ws.append([3, "<script>window.__pwned = 1</script>", 0.4, 20, 1])
+    ws.append([2, "Condenser", 4.8, 30, 2])
+    buf = io.BytesIO()
+    wb.save(buf)
+    path.write_bytes(buf.getvalue())
+
+
+def test_mapping_screen_upload_fix_preview_confirm(live_app, tmp_path, artifacts_dir):
+    if shutil.which(CHROMIUM) is None:
+        pytest.fail(f"{CHROMIUM} is missing: install Debian's chromium")
+    from playwright.sync_api import expect, sync_playwright
+
+    base, app, pid = live_app
+    leaf = next(
+        p
+        for p in app.state.services.snapshot(pid).model.panels
+        if not any(c.feeds for c in p.circuits) and "Y/" in p.system
+    )
+    sheet = tmp_path / "schedule.xlsx"
+    _sheet(sheet)
+    version = app.state.services.snapshot(pid).data_version
+
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        try:
+            page = browser.new_page(viewport={"width": 1400, "height": 1000})
+            page.set_default_timeout(15_000)
+            page.goto(f"{base}/projects/{pid}/sheets")
+            page.set_input_files("#f-file", str(sheet))
+            page.select_option("#f-target", leaf.tag)
+            page.click("#upload-form button[type=submit]")
+            page.wait_for_selector("#import-form")
+
+            va_cell = page.locator('#preview-table tr[data-slot="1"] td[data-field="va"]')
+            expect(va_cell).to_have_text("")  # "Rating" was not recognised: no load yet
+            rating = page.locator('select[data-column="C"]')
+            expect(rating).to_have_value("ignore")
+
+            rating.select_option("kva")  # the correction: column C holds kVA
+            expect(va_cell).to_have_text("1,200")
+            expect(page.locator('#preview-table tr[data-slot="2"] td[data-field="va"]')).to_have_text("4,800")
+            expect(page.locator('#preview-table tr[data-slot="3"] td[data-field="description"]')).to_have_text(
+                "<script>window.__pwned = 1</script>"
+            )
+            assert page.evaluate("window.__pwned") is None
+            assert app.state.services.snapshot(pid).data_version == version  # nothing written yet
+            page.screenshot(path=str(artifacts_dir / "sheets-mapping-preview.png"), full_page=True)
+
+            page.click("#confirm-import")
+            page.wait_for_url(f"**/projects/{pid}/panels/{leaf.tag}*")
+            grid = page.locator("#circuit-grid")
+            expect(grid).to_be_visible()
+            values = page.eval_on_selector_all("#circuit-grid input[type=text]", "els => els.map(e => e.value)")
+            assert "Office lights" in values and "Condenser" in values
+            assert "<script>window.__pwned = 1</script>" in values
+            assert page.evaluate("window.__pwned") is None
+            page.screenshot(path=str(artifacts_dir / "sheets-imported-panel.png"), full_page=True)
+        finally:
+            browser.close()
+
+    panel = app.state.services.snapshot(pid).model.panel(leaf.tag)
+    assert [(c.slot, c.poles, c.va, c.breaker_amps) for c in panel.circuits] == [
+        (1, 1, 1200.0, 20),
+        (2, 2, 4800.0, 30),
+        (3, 1, 400.0, 20),
+    ]
