@@ -323,7 +323,7 @@ def check_circuit_fits(panel: Panel, circuit: Circuit, problems: list[Problem]) 
             )
         )
         return
-    if circuit.poles == 1 and circuit.feeds is None and not spec.has_neutral:
+    if circuit.poles == 1 and not spec.has_neutral:  # feeding breakers too: a 1-pole feed is line-to-neutral
         problems.append(
             Problem(
                 f"a 1-pole (line-to-neutral) load is impossible on {spec.name}: a 3-wire delta has no neutral",
