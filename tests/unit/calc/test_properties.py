@@ -1,0 +1,174 @@
+"""Properties of the currents and the roll-up that must hold for any input (hypothesis).
+
+Facts of the trade (common practice): Kirchhoff's current law makes the line currents of a
+3-wire circuit sum to zero; a balanced three-phase set returns nothing on the neutral; VA is
+conserved as loads roll up to their feeders; constant-power currents at nominal voltage scale
+linearly with the load.  Plus the engine's own contract: an incremental update equals a full
+recompute.
+"""
+
+from __future__ import annotations
+
+import random
+from dataclasses import replace
+
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from server.calc.engine import Calculator, compute_project
+from server.calc.loads import circuit_currents
+from server.calc.model import Category, Circuit, Panel, Project, ProjectInfo, Source, Status
+from server.calc.projectfile import dump_project, parse_project, replace_panel
+from server.calc.systems import SYSTEMS
+from tests.benchmarks.generate import generate_project
+from tests.helpers import assert_close
+
+THREE_WIRE = ["480 3PH 3W", "240 3PH 3W", "600 3PH 3W"]
+FOUR_WIRE = ["208Y/120 3PH 4W", "480Y/277 3PH 4W", "240/120 3PH 4W"]
+PF = st.floats(min_value=0.5, max_value=1.0)
+VA = st.floats(min_value=0.0, max_value=50_000.0, allow_nan=False)
+
+
+@given(
+    system=st.sampled_from(THREE_WIRE + FOUR_WIRE),
+    loads=st.lists(st.tuples(st.integers(1, 20), st.sampled_from([2, 3]), VA, PF), max_size=15),
+)
+def test_line_to_line_and_three_phase_currents_sum_to_zero(system, loads) -> None:
+    spec = SYSTEMS[system]
+    total = 0j
+    scale = 1.0
+    for slot, poles, va, pf in loads:
+        for i in circuit_currents(spec, slot, poles, va, pf).values():
+            total += i
+            scale += abs(i)
+    assert abs(total) <= 1e-9 * scale
+
+
+def _project(system: str, circuits: list[Circuit]) -> Project:
+    return Project(
+        ProjectInfo(name="property (invented)"),
+        sources=(Source("S", system),),
+        panels=(Panel("P", system, fed_from="S", spaces=84, circuits=tuple(circuits)),),
+    )
+
+
+@given(
+    system=st.sampled_from(["208Y/120 3PH 4W", "480Y/277 3PH 4W"]),
+    sets=st.lists(st.tuples(VA, PF), min_size=1, max_size=8),
+)
+def test_balanced_three_phase_sets_give_zero_neutral(system, sets) -> None:
+    # Each set: the same 1-pole load on A, B and C (rows 1, 2, 3 of one side).
+    circuits = []
+    slot = 1
+    for va, pf in sets:
+        for k in range(3):
+            circuits.append(Circuit(slot=slot + 2 * k, poles=1, category=Category.EQUIPMENT, va=va, pf=pf))
+        slot += 6
+    res = compute_project(_project(system, circuits)).panels["P"]
+    biggest = max(res.line_amps.values())
+    assert res.neutral_amps is not None and res.neutral_amps <= 1e-9 * max(biggest, 1.0)
+    assert res.imbalance_pct <= 1e-9
+
+
+CIRCUIT = st.tuples(
+    st.sampled_from([1, 1, 1, 2, 3]),
+    VA,
+    PF,
+    st.sampled_from(list(Category)),
+    st.sampled_from([Status.NEW, Status.EXISTING, Status.FUTURE, Status.REMOVED]),
+    st.sampled_from([0.0, 0.0, 30.0, 80.0]),
+)
+
+
+def _layout(rows) -> list[Circuit]:
+    left, out = 1, []
+    for poles, va, pf, cat, status, h3 in rows:
+        out.append(Circuit(slot=left, poles=poles, category=cat, va=va, pf=pf, status=status, harmonic3_pct=h3))
+        left += 2 * poles
+    return out
+
+
+@given(system=st.sampled_from(FOUR_WIRE + THREE_WIRE), rows=st.lists(CIRCUIT, max_size=12), k=st.floats(0.1, 10.0))
+@settings(suppress_health_check=[HealthCheck.too_slow], deadline=None)
+def test_scaling_all_loads_scales_currents_linearly(system, rows, k) -> None:
+    spec = SYSTEMS[system]
+    if not spec.has_neutral:
+        rows = [(max(r[0], 2), *r[1:]) for r in rows]
+    if spec.high_leg:
+        rows = [r for r in rows if r[0] != 1]  # 1-pole rows may land on the high leg
+    circuits = _layout(rows)
+    base = compute_project(_project(system, circuits)).panels["P"]
+    scaled = compute_project(_project(system, [replace(c, va=(c.va or 0.0) * k) for c in circuits])).panels["P"]
+    for p in spec.phases:
+        assert_close(scaled.line_amps[p], k * base.line_amps[p], rel=1e-9, abs_=1e-9)
+        assert_close(scaled.line_amps_rms[p], k * base.line_amps_rms[p], rel=1e-9, abs_=1e-9)
+        assert_close(scaled.connected_va[p], k * base.connected_va[p], rel=1e-9, abs_=1e-6)
+    if base.neutral_amps is not None:
+        assert_close(scaled.neutral_amps, k * base.neutral_amps, rel=1e-9, abs_=1e-9)
+    assert_close(scaled.imbalance_pct, base.imbalance_pct, rel=1e-9, abs_=1e-9)
+
+
+def _small(seed: int) -> Project:
+    return generate_project(
+        panels=11, sources=1, transformers_per_mdp=2, panels_per_transformer=2, circuits_per_panel=14, seed=seed
+    )
+
+
+@given(seed=st.integers(0, 10_000), include_future=st.booleans())
+@settings(max_examples=40, deadline=None)
+def test_connected_va_is_conserved_through_the_roll_up(seed, include_future) -> None:
+    project = _small(seed)
+    res = compute_project(project, include_future=include_future)
+
+    def counts(c: Circuit) -> bool:
+        return c.status != Status.REMOVED and (include_future or c.status != Status.FUTURE)
+
+    for panel in project.panels:
+        own = sum(c.va or 0.0 for c in panel.circuits if c.feeds is None and c.poles and counts(c))
+        children = 0.0
+        for c in panel.circuits:
+            if c.feeds is None or not counts(c):
+                continue
+            if c.feeds in res.panels:
+                children += res.panels[c.feeds].connected_va_total
+            else:
+                children += res.transformers[c.feeds].connected_kva * 1000.0  # includes loss_pct
+        assert_close(res.panels[panel.tag].connected_va_total, own + children, rel=1e-9, abs_=1e-6, what=panel.tag)
+    for t in project.transformers:
+        below = sum(res.panels[p.tag].connected_va_total for p in project.panels if p.fed_from == t.tag)
+        assert_close(res.transformers[t.tag].connected_kva * 1000.0, below * (1 + t.loss_pct / 100), rel=1e-9)
+    for s in project.sources:
+        below = sum(res.panels[p.tag].connected_va_total for p in project.panels if p.fed_from == s.tag)
+        assert_close(res.sources[s.tag].connected_va, below, rel=1e-9)
+
+
+@given(
+    seed=st.integers(0, 10_000),
+    edits=st.lists(st.tuples(st.integers(0, 10**6), VA, PF, CIRCUIT), min_size=1, max_size=6),
+)
+@settings(max_examples=30, deadline=None)
+def test_incremental_equals_full(seed, edits) -> None:
+    project = _small(seed)
+    calc = Calculator(project)
+    for pick, va, pf, (_poles, _va, _pf, cat, status, h3) in edits:
+        rng = random.Random(pick)
+        panel = rng.choice(calc.project.panels)
+        loads = [i for i, c in enumerate(panel.circuits) if c.feeds is None and c.poles > 0]
+        circuits = list(panel.circuits)
+        if loads:
+            i = rng.choice(loads)
+            circuits[i] = replace(circuits[i], va=va, pf=pf, category=cat, status=status, harmonic3_pct=h3)
+        # Sometimes change a feeding breaker's rating too (the child's feeder must follow).
+        feeds = [i for i, c in enumerate(circuits) if c.feeds is not None]
+        if feeds and rng.random() < 0.3:
+            i = rng.choice(feeds)
+            circuits[i] = replace(circuits[i], breaker_amps=rng.choice([100, 200, 400]))
+        edited = replace(panel, circuits=tuple(circuits))
+        incremental = calc.update_panel(edited)
+        project = replace_panel(project, edited)
+        assert calc.project == project
+        full = compute_project(project)
+        assert incremental == full
+        assert incremental.to_json() == full.to_json()
+    # The edited project is still a valid project file.
+    assert parse_project(dump_project(calc.project)) == calc.project
