@@ -227,7 +227,7 @@ def merge_pdfs(pdfs: Sequence[bytes], titles: Sequence[str]) -> bytes:
     for pdf, title in zip(pdfs, titles, strict=True):
         start = len(writer.pages)
         writer.append(PdfReader(io.BytesIO(pdf)), import_outline=False)
-        writer.add_outline_item(title, start)
+        writer.add_outline_item(title=title, page_number=start)
     buf = io.BytesIO()
     writer.write(buf)
     return buf.getvalue()

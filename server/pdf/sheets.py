@@ -57,6 +57,20 @@ class Paper:
             return "0.45in 3.55in 0.45in 0.45in"
         return "0.45in 0.45in 3.35in 0.45in"
 
+    @property
+    def body_width_in(self) -> float:
+        return self.width_in - 0.9
+
+    @property
+    def strip_height_in(self) -> float:
+        """Height of the landscape title-block strip: the body height plus the frame's 0.2 in each side."""
+        return self.height_in - 0.9 + 0.4
+
+    @property
+    def strip_width_in(self) -> float:
+        """Width of the portrait title-block strip: the body width plus the frame's 0.2 in each side."""
+        return self.width_in - 0.9 + 0.4
+
 
 PAPERS: dict[str, Paper] = {
     "letter-portrait": Paper("letter-portrait", 8.5, 11.0),
