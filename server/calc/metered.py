@@ -566,15 +566,20 @@ def _read_rows(text: str, name: str, volts: float | None) -> tuple[_Plan, list[s
     return plan, notes, cols
 
 
+#: The fast path works on blocks of about this many characters, so that the strings of one
+#: block are freed and their memory reused while still in the processor cache.
+_CHUNK_CHARS = 1 << 16
+
+
 def _fast_columns(text: str, delim: str, header_row: int, plan: _Plan) -> _Columns | None:
-    """Whole-column parsing with C-level string and map operations (no per-row objects).
+    """Block-wise column parsing with C-level string and map operations (no per-row objects).
 
     Only for the plain case: no quoting, no stray carriage return, every line with the
-    header's number of fields (checked by total), every timestamp and number well formed and
-    every value finite and not negative.  ``None`` as soon as anything differs; the row-by-row
-    reader then finds and explains it.  A line with too many or too few fields shifts the
-    columns, so a timestamp lands among the numbers (or the reverse) and parsing fails: the
-    row-by-row reader takes over.
+    header's number of fields (checked per block by total), every timestamp and number well
+    formed and every value finite and not negative.  ``None`` as soon as anything differs; the
+    row-by-row reader then finds and explains it.  A line with too many or too few fields
+    shifts the columns, so a timestamp lands among the numbers (or the reverse) and parsing
+    fails: the row-by-row reader takes over.
     """
     if '"' in text:
         return None
@@ -591,32 +596,41 @@ def _fast_columns(text: str, delim: str, header_row: int, plan: _Plan) -> _Colum
     if not body:
         return None
     ncols = plan.ncols
-    nlines = body.count("\n") + 1
-    if body.count(delim) != (ncols - 1) * nlines:
-        return None
-    flat = body.replace("\n", delim).split(delim)
-    if plan.time_index is not None:
-        raw_t: Sequence[str] = flat[plan.time_index :: ncols]
-    else:
-        dates = flat[plan.date_index :: ncols]  # type: ignore[misc]
-        clocks = flat[plan.clock_index :: ncols]  # type: ignore[misc]
-        raw_t = list(map(" ".join, zip(dates, clocks, strict=True)))
-    try:
-        if "/" in raw_t[0]:
-            times = list(map(_parse_mdy, raw_t))
-        else:
-            times = list(map(datetime.fromisoformat, raw_t))
-    except ValueError:
-        return None
-    raw_cols = [flat[c.index :: ncols] for c in plan.value_columns]
-    del flat
-    try:
-        series = _floats(raw_cols)
-    except ValueError:
-        return None
-    for vals in series:
-        if not math.isfinite(sum(vals)) or min(vals) < 0:  # NaN, infinity or a negative reading
+    value_index = [c.index for c in plan.value_columns]
+    times: list[datetime] = []
+    series: list[list[float]] = [[] for _ in value_index]
+    numbers = _Numbers()
+    parse_time: Callable[[str], datetime] | None = None
+    nlines = 0
+    pos, size = 0, len(body)
+    while pos < size:
+        end = body.find("\n", pos + _CHUNK_CHARS)
+        if end == -1:
+            end = size
+        block = body[pos:end]
+        pos = end + 1
+        lines = block.count("\n") + 1
+        if block.count(delim) != (ncols - 1) * lines:
             return None
+        nlines += lines
+        flat = block.replace("\n", delim).split(delim)
+        if plan.time_index is not None:
+            raw_t: Sequence[str] = flat[plan.time_index :: ncols]
+        else:
+            dates = flat[plan.date_index :: ncols]  # type: ignore[misc]
+            clocks = flat[plan.clock_index :: ncols]  # type: ignore[misc]
+            raw_t = list(map(" ".join, zip(dates, clocks, strict=True)))
+        if parse_time is None:
+            parse_time = _parse_mdy if "/" in raw_t[0] else datetime.fromisoformat
+        try:
+            times += map(parse_time, raw_t)
+        except ValueError:
+            return None
+        for out, i in zip(series, value_index, strict=True):
+            vals = numbers.convert(flat[i::ncols])
+            if vals is None:
+                return None
+            out += vals
     total = series[0] if plan.total is not None else None
     phases = series[1:] if plan.total is not None else series
     first_line = header_row + 2  # physical line of the first data row (1-based)
@@ -624,20 +638,41 @@ def _fast_columns(text: str, delim: str, header_row: int, plan: _Plan) -> _Colum
     return _Columns(range(first_line, first_line + nlines), times, total, phases, [], scale)
 
 
-def _floats(columns: list[list[str]]) -> list[list[float]]:
-    """Numbers of text columns; raises ``ValueError`` on the first malformed one.
+class _Numbers:
+    """Text to float for the fast path, checking every number is finite and not negative.
 
     Meter readings are quantised (a few thousand distinct strings in a year of 15-minute
-    data), so each distinct string is converted once and looked up after that; when most
-    strings are distinct, plain conversion is cheaper and is used.
+    data), so each distinct string is converted and checked once and looked up after that.
+    When most strings turn out distinct, plain conversion is cheaper and is used from then on.
     """
-    distinct: set[str] = set()
-    distinct.update(*columns)
-    if len(distinct) * 2 > sum(map(len, columns)):
-        return [list(map(float, c)) for c in columns]
-    number = dict(zip(distinct, map(float, distinct), strict=True))
-    lookup = number.__getitem__
-    return [list(map(lookup, c)) for c in columns]
+
+    def __init__(self) -> None:
+        self.number: dict[str, float] = {}
+        self.seen = 0
+        self.plain = False
+
+    def convert(self, texts: list[str]) -> list[float] | None:
+        try:
+            if self.plain:
+                vals = list(map(float, texts))
+                if not math.isfinite(sum(vals)) or min(vals) < 0:
+                    return None
+                return vals
+            self.seen += len(texts)
+            if self.seen > 30_000 and len(self.number) * 2 > self.seen:  # hardly any repeats
+                self.plain = True
+                return self.convert(texts)
+            new = set(texts)
+            new.difference_update(self.number)
+            fresh = dict(zip(new, map(float, new), strict=True))
+        except ValueError:
+            return None
+        if fresh:
+            values = fresh.values()
+            if not math.isfinite(sum(values)) or min(values) < 0:
+                return None
+            self.number.update(fresh)
+        return list(map(self.number.__getitem__, texts))
 
 
 def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: float | None) -> _Columns:
@@ -687,12 +722,12 @@ def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: fl
 
 
 #: Marks a day on which the zone's UTC offset changes (readings that day are placed one by one).
-_CHANGES = float("nan")
+_CHANGES: Any = object()
 _EPOCH_ORDINAL = _EPOCH_DATE.toordinal()
 
 
-class _WallDays(dict[float, float]):
-    """UTC offset (s) of a zone per wall-clock day (days since 1970), or ``_CHANGES``.
+class _WallDays(dict[int, Any]):
+    """UTC offset (a timedelta) of a zone per wall-clock day (proleptic ordinal), or ``_CHANGES``.
 
     A dict so that lookups run at C speed (``map(d.__getitem__, ...)``); a day is computed once.
     A day whose offset is the same at both ends (both folds) is taken as constant: tz data has no
@@ -703,13 +738,17 @@ class _WallDays(dict[float, float]):
         super().__init__()
         self.tz = tz
 
-    def __missing__(self, day: float) -> float:
-        a = _EPOCH + timedelta(days=day)
+    def __missing__(self, day: int) -> Any:
+        a = datetime.fromordinal(day)
         b = a + timedelta(seconds=86399)
-        offs = {_offset_s(a, self.tz, 0), _offset_s(a, self.tz, 1), _offset_s(b, self.tz, 0), _offset_s(b, self.tz, 1)}
+        offs = {_offset(a, self.tz, 0), _offset(a, self.tz, 1), _offset(b, self.tz, 0), _offset(b, self.tz, 1)}
         value = offs.pop() if len(offs) == 1 else _CHANGES
         self[day] = value
         return value
+
+
+def _offset(naive: datetime, tz: tzinfo, fold: int) -> timedelta:
+    return naive.replace(tzinfo=tz, fold=fold).utcoffset() or timedelta(0)
 
 
 class _UtcDays(dict[float, float]):
@@ -728,12 +767,7 @@ class _UtcDays(dict[float, float]):
         return value
 
 
-def _offset_s(naive: datetime, tz: tzinfo, fold: int) -> float:
-    off = naive.replace(tzinfo=tz, fold=fold).utcoffset()
-    return off.total_seconds() if off is not None else 0.0
-
-
-def _indices_of(values: list[float], marker: float) -> list[int]:
+def _indices_of(values: list[Any], marker: object) -> list[int]:
     """Positions holding ``marker`` itself (identity: list.index scans at C speed)."""
     out: list[int] = []
     k = -1
@@ -814,24 +848,22 @@ def _instants(
         w = list(map(add, u, offs))
         return u, w, 0, bad, lambda x, k: datetime.fromtimestamp(x, tz)
 
-    # Naive wall-clock times in ``tz``.
-    w = list(map(timedelta.total_seconds, map(sub, times, repeat(_EPOCH))))
+    # Naive wall-clock times in ``tz``: instants become naive UTC datetimes.
     wall_days = _WallDays(tz)
-    offs = list(map(wall_days.__getitem__, map(floordiv, w, repeat(86400.0))))
+    offs = list(map(wall_days.__getitem__, map(datetime.toordinal, times)))
     dst_repeats = 0
-    passes: dict[float, list[int | None]] = {}  # ambiguous wall time -> [first pass, second pass]
+    passes: dict[datetime, list[int | None]] = {}  # ambiguous wall time -> [first pass, second pass]
     drop: list[int] = []
     values = _row_values(cols)
     for k in _indices_of(offs, _CHANGES):  # in file order: the first pass comes first
-        x = w[k]
-        naive = _EPOCH + timedelta(seconds=x)
-        o0, o1 = _offset_s(naive, tz, 0), _offset_s(naive, tz, 1)
+        t = times[k]
+        o0, o1 = _offset(t, tz, 0), _offset(t, tz, 1)
         if o0 == o1:
             offs[k] = o0
         elif o0 > o1:  # inside the fall-back hour: this wall-clock time happens twice
-            seen = passes.get(x)
+            seen = passes.get(t)
             if seen is None:
-                passes[x] = [k, None]
+                passes[t] = [k, None]
                 offs[k] = o0
             elif values(k) == values(seen[0]):  # type: ignore[arg-type]
                 offs[k] = o0  # the same values again: a duplicate of the first pass
@@ -841,22 +873,21 @@ def _instants(
                     seen[1] = k
                     dst_repeats += 1
         else:  # inside the spring-forward hour: this wall-clock time never happens
-            offs[k] = 0.0
+            offs[k] = o0
             drop.append(k)
             bad.append(
                 BadRow(
                     cols.lines[k],
-                    f"{times[k].isoformat(sep=' ')} does not exist in {_zone_name(tz)} (daylight-saving clock change)",
+                    f"{t.isoformat(sep=' ')} does not exist in {_zone_name(tz)} (daylight-saving clock change)",
                 )
             )
-    u = list(map(sub, w, offs))
     if drop:
         dropped = set(drop)
         keep = [k for k in range(n) if k not in dropped]
         _take(cols, keep)
-        u = [u[k] for k in keep]
-        w = [w[k] for k in keep]
-    return u, w, dst_repeats, bad, lambda x, k: datetime.fromtimestamp(x, tz)
+        offs = [offs[k] for k in keep]
+    u = list(map(sub, cols.times, offs))
+    return u, cols.times, dst_repeats, bad, lambda x, k: x.replace(tzinfo=UTC).astimezone(tz)
 
 
 def _rolling(u: list[Any], series: list[list[float]], iv: Any, iv_s: float) -> tuple[list[int], list[list[float]]]:
@@ -909,6 +940,7 @@ def _analyze(
 ) -> MeteredResult:
     bad = list(cols.bad)
     u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, notes)
+    wall_is_instant = w is u  # then local days follow the instants' order
     bad += more_bad
     bad.sort(key=lambda b: b.line)
     n = len(u)
@@ -923,40 +955,39 @@ def _analyze(
     phases = cols.phases
 
     # Time order, then one reading per instant (the higher total is kept: conservative).
-    if all(map(lt, u, islice(u, 1, None))):
-        order = None
-        duplicates = 0
-    else:
-        order = sorted(range(n), key=u.__getitem__)
-        kept: list[int] = []
-        duplicates = 0
-        for k in order:
-            if kept and u[kept[-1]] == u[k]:
-                duplicates += 1
-                if total[k] > total[kept[-1]]:
-                    kept[-1] = k
-            else:
-                kept.append(k)
-        order = kept
-    if order is not None:
-        u = [u[k] for k in order]
-        w = [w[k] for k in order]
-        total = [total[k] for k in order]
-        phases = [[p[k] for k in order] for p in phases]
-        index = order
-    else:
-        index = range(n)
-    readings = len(u)
-    if readings < 2:
-        raise MeteredDataError("needs at least two distinct timestamps", source=source)
-
     deltas = list(map(sub, islice(u, 1, None), u))
-    if deltas.count(deltas[0]) == len(deltas):  # evenly spaced: the usual case
-        iv = deltas[0]
+    step = deltas[0]
+    if deltas.count(step) == len(deltas) and step > step * 0:  # in order and evenly spaced: the usual case
+        iv = step
         deltas = []
+        duplicates = 0
+        index: list[int] | range = range(n)
+        in_order = True
     else:
+        in_order = all(map(lt, u, islice(u, 1, None)))
+        duplicates = 0
+        if in_order:
+            index = range(n)
+        else:
+            kept: list[int] = []
+            for k in sorted(range(n), key=u.__getitem__):
+                if kept and u[kept[-1]] == u[k]:
+                    duplicates += 1
+                    if total[k] > total[kept[-1]]:
+                        kept[-1] = k
+                else:
+                    kept.append(k)
+            index = kept
+            u = [u[k] for k in kept]
+            w = [w[k] for k in kept]
+            total = [total[k] for k in kept]
+            phases = [[p[k] for k in kept] for p in phases]
+        if len(u) < 2:
+            raise MeteredDataError("needs at least two distinct timestamps", source=source)
+        deltas = list(map(sub, islice(u, 1, None), u))
         counts = Counter(deltas)
         iv = max(counts.items(), key=lambda kv: (kv[1], -kv[0]))[0]
+    readings = len(u)
     iv_s = _secs(iv)
     interval_minutes = iv_s / 60.0
     gaps = 0
@@ -1062,7 +1093,7 @@ def _analyze(
     if bad:
         notes.append(f"{len(bad)} bad rows left out (listed)")
 
-    daily = _daily(w, pos, d_total, to_kva)
+    daily = _daily(w, pos, d_total, to_kva, days_sorted=wall_is_instant and in_order)
     return MeteredResult(
         source=source,
         rows=rows,
@@ -1093,7 +1124,9 @@ def _analyze(
     )
 
 
-def _daily(w: list[Any], pos: list[int] | range, series: list[float], to_kva: float) -> tuple[DailyPeak, ...]:
+def _daily(
+    w: list[Any], pos: list[int] | range, series: list[float], to_kva: float, *, days_sorted: bool = False
+) -> tuple[DailyPeak, ...]:
     """Peak per local calendar day of the demand series (window ends ``pos`` in ``w``).
 
     ``w`` holds wall-clock datetimes or wall-clock seconds since 1970; days are proleptic
@@ -1105,7 +1138,7 @@ def _daily(w: list[Any], pos: list[int] | range, series: list[float], to_kva: fl
     else:
         days = [d + _EPOCH_ORDINAL for d in map(floordiv, wp, repeat(86400.0))]
     out: list[DailyPeak] = []
-    if all(map(le, days, islice(days, 1, None))):  # local days in order: slice per day
+    if days_sorted or all(map(le, days, islice(days, 1, None))):  # local days in order: slice per day
         start, n = 0, len(days)
         while start < n:
             d = days[start]
