@@ -49,6 +49,7 @@ MDP: T1's 47 900 VA spread evenly (15 966.67 per pole) + motor 20 000/3 per phas
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import replace
 from pathlib import Path
 
@@ -335,3 +336,85 @@ def test_update_panel_equals_full_compute(project) -> None:
         + (Circuit(slot=20, poles=1, category=None, va=500.0),),
     )
     assert calc.update_panel(moved) == compute_project(replace_panel(calc.project, moved))
+
+
+def _xf_project(transformer: dict, panel_circuits: list[dict], *, feed_poles: int = 2, feed_slot: int = 1) -> dict:
+    return {
+        "format": "panelwright.project",
+        "version": 1,
+        "project": {"name": "Transformer checks (invented)"},
+        "sources": [{"tag": "S", "system": "480Y/277 3PH 4W"}],
+        "transformers": [{"tag": "X", "feeder": {"length_ft": 0}, **transformer}],
+        "panels": [
+            {
+                "tag": "DP",
+                "system": "480Y/277 3PH 4W",
+                "fed_from": "S",
+                "feeder": {"length_ft": 0},
+                "circuits": [{"slot": feed_slot, "poles": feed_poles, "feeds": "X", "breaker_amps": 100}],
+            },
+            {"tag": "SP", "system": transformer["secondary"], "fed_from": "X", "circuits": panel_circuits},
+        ],
+    }
+
+
+def test_single_phase_transformer_fault_and_reflection() -> None:
+    # 50 kVA 480 V – 120/240 V, 2.5 %Z, infinite source, no primary feeder:
+    # FLA_sec = 50 000 / 240 = 208.3 A; fault = 208.3 × 100 / 2.5 = 8.333 kA (common practice).
+    data = _xf_project(
+        {"kva": 50, "primary": "480Y/277 3PH 4W", "secondary": "120/240 1PH 3W", "impedance_pct": 2.5},
+        [{"slot": 1, "poles": 2, "va": 24000, "pf": 1.0}, {"slot": 4, "poles": 1, "va": 2400, "pf": 1.0}],
+    )
+    res = compute_project(loads_project(json.dumps(data)))
+    t = res.transformers["X"]
+    assert_close(t.fla_secondary, 50_000 / 240)
+    assert_close(t.fla_primary, 50_000 / 480)
+    assert_close(t.secondary_fault_ka, 50_000 / 240 * 100 / 2.5 / 1000)
+    # Primary: 24 kVA across 240 V → 100 A secondary → 50 A on 480 V lines A and B; the 2.4 kVA
+    # 120 V load on B is half of the winding: 20 A × 120/480 = 5 A more (opposite phase of B → adds).
+    assert set(k for k, v in t.primary_line_amps.items() if v > 0) == {"A", "B"}
+    assert_close(t.primary_line_amps["A"], (24_000 + 2_400) / 480, rel=0.002)
+    dp = res.panels["DP"]
+    assert dp.neutral_amps is not None and dp.neutral_amps < 1e-9  # line to line on the primary
+    assert dp.connected_va == pytest.approx({"A": 13_200.0, "B": 13_200.0, "C": 0.0})  # balanced over the 2 poles
+
+
+def test_wye_wye_passes_neutral_current_and_triplens_to_the_primary() -> None:
+    data = _xf_project(
+        {"kva": 75, "primary": "480Y/277 3PH 4W", "secondary": "208Y/120 3PH 4W"},
+        [{"slot": 1, "va": 12000, "pf": 1.0, "harmonic3_pct": 50}],
+        feed_poles=3,
+    )
+    res = compute_project(loads_project(json.dumps(data)))
+    # 100 A on secondary phase A, n = 277/120: 43.3 A fundamental on primary A and its neutral;
+    # 50 % third harmonic: 21.7 A → I_N = √(43.3² + 21.7²) = 48.4 A (zero sequence passes a grounded wye–wye).
+    i1 = 100 * 120 / 277
+    assert_close(res.panels["DP"].neutral_amps, math.hypot(i1, i1 / 2), rel=0.002)
+    assert_close(res.panels["SP"].neutral_amps, math.hypot(100, 50), rel=0.002)
+    assert res.transformers["X"].k_factor_suggested is not None  # K = (1 + 9·0.25)/(1 + 0.25) = 2.6 → K-4
+    # The same load behind a delta primary: nothing on the 480 V neutral.
+    data["transformers"][0]["primary"] = "480 3PH 3W"
+    res = compute_project(loads_project(json.dumps(data)))
+    assert res.panels["DP"].neutral_amps < 1e-9
+
+
+def test_neutral_overload_warning() -> None:
+    data = {
+        "format": "panelwright.project",
+        "version": 1,
+        "project": {"name": "Neutral (invented)"},
+        "sources": [{"tag": "S", "system": "208Y/120 3PH 4W"}],
+        "panels": [
+            {
+                "tag": "NP",
+                "system": "208Y/120 3PH 4W",
+                "fed_from": "S",
+                "feeder": {"length_ft": 10, "size": "4", "neutral_size": "10"},
+                "circuits": [{"slot": 1, "va": 7200, "pf": 1.0, "breaker_amps": 70}],
+            }
+        ],
+    }
+    res = compute_project(loads_project(json.dumps(data)))
+    # 60 A returns on a 10 AWG neutral (35 A at 75 °C, NFPA 70-2023 Table 310.16, from memory).
+    assert_close(res.panels["NP"].neutral_amps, 60.0)
+    assert "neutral-overload" in _codes(res.panels["NP"])
