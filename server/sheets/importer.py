@@ -525,7 +525,8 @@ def _sheet_rows(
         word = desc.strip().lower() if len(desc) <= 8 else ""
         if word in ("space", "spc") and "poles" not in w.raw:
             w.raw["poles"] = 0
-        if word in ("spare", "spr") and "category" not in w.raw:
+        # messy sheets without a category column: a breaker described "spare" is a spare
+        if word in ("spare", "spr") and cmap.column(Role.CATEGORY) is None:
             w.raw["category"] = Category.SPARE.value
         panel = project.panel(tag) if tag else None
         spec = SYSTEMS.get(panel.system) if panel else None

@@ -167,14 +167,19 @@ def read_csv(data: bytes, source: str) -> Book:
     """Read a CSV file (comma, semicolon or tab separated; UTF-8 or Windows-1252)."""
     text = _decode(data, source)
     sample = text[:20000]
+    # Only the delimiter is sniffed; quoting stays the standard (RFC 4180 / "excel") so a
+    # quote character inside a cell can never be mistaken for a different quoting style.
     try:
-        dialect: Any = csv.Sniffer().sniff(sample, delimiters=",;\t")
+        delimiter = csv.Sniffer().sniff(sample, delimiters=",;\t").delimiter
     except csv.Error:
-        dialect = csv.excel
+        delimiter = ","
+    first_line = sample.split("\n", 1)[0]
+    if first_line.count(delimiter) == 0 and first_line.count(",") > 0:
+        delimiter = ","
     rows: list[tuple[CellValue, ...]] = []
     width = 0
     try:
-        for r, raw in enumerate(csv.reader(io.StringIO(text, newline=""), dialect)):
+        for r, raw in enumerate(csv.reader(io.StringIO(text, newline=""), csv.excel, delimiter=delimiter)):
             if r >= MAX_ROWS:
                 raise SheetFileError(f"has more than {MAX_ROWS} rows; split it", source=source)
             values: list[CellValue] = [unescape_text(v.strip()) or None for v in raw[:MAX_COLUMNS]]

@@ -98,3 +98,20 @@ def test_csv_escapes_formula_text_and_summary_has_caution():
     summary = summary_csv(project, compute_project(project)).decode("utf-8-sig")
     assert summary.splitlines()[0].startswith("Panel,System,Fed from")
     assert CAUTION in summary
+
+
+def test_special_words_round_trip_exactly():
+    """Words the importer reads specially in messy sheets stay as written in an exported table."""
+    project = _demo()
+    lp = _leaf_panel(project)
+    odd = (
+        Circuit(1, 1, "Spare", None, None, breaker_amps=20),
+        Circuit(3, 1, "SPACE", Category.LIGHTING, 100.0),
+        Circuit(5, 1, "TOTAL", None, 10.0),
+        Circuit(7, 1, "Ckt", None, 10.0, notes="Slot"),
+    )
+    project = replace_panel(project, replace(lp, circuits=odd))
+    for data, name in ((project_xlsx(project, compute_project(project)), "p.xlsx"), (circuits_csv(project), "p.csv")):
+        book = read_upload(data, name)
+        preview = preview_upload(book, plan_sheets(book, project), project)
+        assert preview.circuits[lp.tag] == odd, name
