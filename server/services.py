@@ -330,6 +330,10 @@ class Services:
         self.sessions = sessions
         self.cache = CalcCache(cache_size)
         self._locks = _Locks()
+        from server import audit, revisions  # every write is audited; issued revisions refuse updates
+
+        audit.install(sessions)
+        revisions.install_guard(sessions)
 
     @classmethod
     def from_settings(cls, settings: Settings) -> Services:
@@ -833,7 +837,7 @@ def _attach(
     data: dict[str, Any], node: dict[str, Any], parent: str | None, *, breaker_amps: Any, form: Mapping[str, Any]
 ) -> None:
     """Feed ``node`` from ``parent``: by name from a source or transformer, or by a new breaker in a panel."""
-    field_name = next(iter(form), "parent") if form else "parent"
+    field_name = "refeed_to" if "refeed_to" in form else "parent"
     if not parent:
         raise EditRejected([Problem("choose what feeds it", field=field_name)], form)
     kind = _kind_of(data, parent)
@@ -851,7 +855,6 @@ def _attach(
             [
                 Problem(
                     f"panel {parent} has no free run of {poles} spaces for the feeding breaker",
-                    parent,
                     field=field_name,
                 )
             ],

@@ -56,7 +56,13 @@ def add_node(request: Request, pid: int, svc: ServicesDep, templates: TemplatesD
         svc.add_node(pid, form)
     except EditRejected as exc:
         return _tree(
-            request, templates, svc.snapshot(pid), values=form, errors=_errors(exc), form="add", status_code=422
+            request,
+            templates,
+            svc.snapshot(pid),
+            values=form,
+            errors=_errors(exc, tag=(form.get("tag") or "").strip()),
+            form="add",
+            status_code=422,
         )
     return RedirectResponse(f"/projects/{pid}/tree#node-{form.get('tag', '').strip()}", status_code=303)
 
@@ -69,7 +75,13 @@ def move_node(
         svc.move_node(pid, tag, form.get("parent") or None, breaker_amps=form.get("breaker_amps") or None)
     except EditRejected as exc:
         return _tree(
-            request, templates, svc.snapshot(pid), values=form, errors=_errors(exc), form=f"move:{tag}", status_code=422
+            request,
+            templates,
+            svc.snapshot(pid),
+            values=form,
+            errors=_errors(exc, tag=tag, known=frozenset({"parent", "breaker_amps"})),
+            form=f"move:{tag}",
+            status_code=422,
         )
     return RedirectResponse(f"/projects/{pid}/tree#node-{tag}", status_code=303)
 
@@ -108,14 +120,14 @@ def delete_node(
     try:
         svc.delete_node(pid, tag, dependants=mode, refeed_to=form.get("refeed_to") or None)
     except EditRejected as exc:
-        ctx = _delete_ctx(svc.snapshot(pid), tag, _errors(exc))
+        errors = _errors(exc, tag=tag, known=frozenset({"dependants", "refeed_to"}))
+        ctx = _delete_ctx(svc.snapshot(pid), tag, errors)
         return templates.TemplateResponse(request, "tree/delete.html", {"ctx": ctx, "page": ctx.page}, status_code=422)
     return RedirectResponse(f"/projects/{pid}/tree", status_code=303)
 
 
-def _errors(exc: EditRejected) -> dict[str, str]:
-    """Messages keyed by form field; problems elsewhere in the project go under "" with their place."""
-    known = {
+ADD_FIELDS = frozenset(
+    {
         "tag",
         "kind",
         "system",
@@ -129,12 +141,16 @@ def _errors(exc: EditRejected) -> dict[str, str]:
         "main_amps",
         "spaces",
         "breaker_amps",
-        "refeed_to",
-        "dependants",
     }
+)
+
+
+def _errors(exc: EditRejected, *, tag: str | None = None, known: frozenset[str] = ADD_FIELDS) -> dict[str, str]:
+    """Messages keyed by form field; problems of other elements go under "" with their place named."""
     out: dict[str, str] = {}
     for p in exc.problems:
-        key = p.field if p.field in known else ""
+        mine = p.tag is None or p.tag == tag
+        key = p.field if (p.field in known and mine) else ""
         text = p.message if key else p.describe()
         out[key] = f"{out[key]}; {text}" if key in out else text
     return out

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from urllib.parse import urlsplit
 
-from server.commands import CAUTION
 from server.calc.systems import SYSTEMS, slot_phase
+from server.commands import CAUTION
 from tests.integration.web.html import parse
 
 
@@ -126,9 +126,13 @@ def test_unknown_things_get_a_friendly_404(client, demo_id):
 
 
 def test_element_links_redirect_to_the_right_page(client, demo_id):
-    assert client.get(f"/projects/{demo_id}/elements/LP-1", follow_redirects=False).headers["location"].endswith(
-        "/panels/LP-1"
+    assert (
+        client.get(f"/projects/{demo_id}/elements/LP-1", follow_redirects=False)
+        .headers["location"]
+        .endswith("/panels/LP-1")
     )
-    assert client.get(f"/projects/{demo_id}/elements/T-1", follow_redirects=False).headers["location"].endswith(
-        "/transformers/T-1"
+    assert (
+        client.get(f"/projects/{demo_id}/elements/T-1", follow_redirects=False)
+        .headers["location"]
+        .endswith("/transformers/T-1")
     )
