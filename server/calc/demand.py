@@ -32,6 +32,9 @@ from .model import Category, CodeEdition, Occupancy
 from .results import CategoryDemand
 
 LARGEST_MOTOR_STEP = "largest_motor"
+#: Category key of an existing load taken from metered data (NEC 220.87): already the maximum
+#: demand × 125 %, so it counts at 100 % and never in a demand tier of its own kind.
+METERED_EXISTING = "metered_existing"
 
 
 @dataclass(frozen=True)
@@ -169,6 +172,8 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
             )
         elif cat == Category.MOTOR.value:
             add(cat, conn, conn, _rule(code, "motors"), "100 % of every motor (25 % of the largest added below)")
+        elif cat == METERED_EXISTING:
+            add(cat, conn, conn, f"{code.value} 220.87", "existing load from metered maximum demand × 125 %, at 100 %")
         else:
             add(cat, conn, conn, f"{code.value} Article 220", "100 %")
 

@@ -28,6 +28,16 @@ design_va = demand_va + 0.25 × continuous_demand_va (125 % of the continuous pa
 the rest, NEC 215.2(A)(1); the 25 % of the largest motor is already inside demand_va).  The
 most-loaded phase sets the feeder.  0 when nothing is connected.
 
+**Metered existing load (NEC 220.87).**  ``existing_load_override_va`` maps a node tag to an
+existing load taken from metered data (maximum demand × 125 %, VA).  At that node the
+aggregate leaves out every ``existing`` circuit of its whole subtree (the meter on its feeder
+saw all of them) and adds the metered load instead: spread evenly over the node's phases as
+one balanced load at :data:`METERED_PF`, in the demand category
+:data:`server.calc.demand.METERED_EXISTING` at 100 %.  New and future loads stay on top with
+their own demand factors.  Nodes below keep their schedules; nodes above see the metered
+figure through it.  A metered node inside another metered node's subtree is covered by the
+upper meter.
+
 :class:`Calculator` keeps every node's aggregates so that :meth:`Calculator.update_panel`
 recomputes one panel's circuits, re-aggregates its ancestors from cached child aggregates,
 re-runs demand/feeder/transformer sizing for those nodes only and then runs the cheap
@@ -37,7 +47,7 @@ top-down pass; the result is identical to a full :func:`compute_project`.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
 from . import demand as _demand
@@ -94,6 +104,10 @@ HARMONIC_DOMINANT_SHARE = 0.5
 #: The 120 V loads of a high-leg delta all land on the centre-tapped A–C winding; above this
 #: share of the panel's connected VA a 208Y/120 system is usually the better choice.
 HIGH_LEG_LN_SHARE = 0.5
+
+#: Power factor given to a metered existing load (the meter's kVA carries no angle); common
+#: practice for mixed building loads, the same as :data:`server.calc.metered.DEFAULT_PF`.
+METERED_PF = 0.9
 
 _SEVERITY_ORDER = (Severity.ERROR, Severity.WARNING, Severity.NOTE)
 _SEVERITY_RANK = {sev: i for i, sev in enumerate(_SEVERITY_ORDER)}
@@ -482,8 +496,16 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
 class Calculator:
     """Full and incremental calculation of one project (see the module docstring)."""
 
-    def __init__(self, project: Project, *, include_future: bool | None = None) -> None:
+    def __init__(
+        self,
+        project: Project,
+        *,
+        include_future: bool | None = None,
+        existing_load_override_va: Mapping[str, float] | None = None,
+    ) -> None:
         self._include_future_opt = include_future
+        #: node tag → metered existing load (VA) replacing its subtree's existing circuits
+        self.existing_load_override_va: dict[str, float] = dict(existing_load_override_va or {})
         self._build(project)
 
     # ---- construction
@@ -570,19 +592,40 @@ class Calculator:
     # ---- step 2: roll-up
 
     def _aggregate(self, node: _Node) -> None:
-        agg = _Agg(node.spec.phases)
-        if node.own is not None:
-            agg.add_same(node.own)
-        for child in node.children:
-            if child.via is not None and not child.via.counts(self.include_future):
-                continue
-            assert child.up is not None
-            agg.add_same(child.up)
+        metered = self.existing_load_override_va.get(node.tag) if self.existing_load_override_va else None
+        if metered is not None:
+            agg = self._without_existing(node)
+            _add_metered(agg, node.spec, metered)
+        else:
+            agg = _Agg(node.spec.phases)
+            if node.own is not None:
+                agg.add_same(node.own)
+            for child in node.children:
+                if child.via is not None and not child.via.counts(self.include_future):
+                    continue
+                assert child.up is not None
+                agg.add_same(child.up)
         node.total = agg
         node.up = self._present_to_parent(node) if node.parent is not None else None
 
-    def _present_to_parent(self, node: _Node) -> _Agg:
-        total = node.total
+    def _without_existing(self, node: _Node) -> _Agg:
+        """The aggregate of ``node``'s subtree with every ``existing`` circuit left out."""
+        agg = _Agg(node.spec.phases)
+        if node.kind == "panel":
+            panel: Panel = node.element  # type: ignore[assignment]
+            keep = tuple(c for c in panel.circuits if c.status is not Status.EXISTING or c.feeds is not None)
+            tmp = _Node("panel", Panel(panel.tag, panel.system, circuits=keep, spaces=panel.spaces), node.spec)
+            _own_circuits(tmp, self.include_future, self.code.value)
+            assert tmp.own is not None
+            agg.add_same(tmp.own)
+        for child in node.children:
+            if child.via is not None and not child.via.counts(self.include_future):
+                continue
+            agg.add_same(self._present_to_parent(child, self._without_existing(child)))
+        return agg
+
+    def _present_to_parent(self, node: _Node, total: _Agg | None = None) -> _Agg:
+        total = node.total if total is None else total
         assert total is not None
         if node.kind == "panel":
             return total  # same system, phase for phase
@@ -1158,6 +1201,24 @@ class Calculator:
         return self._result
 
 
+def _add_metered(agg: _Agg, spec: SystemSpec, va: float) -> None:
+    """Add a metered existing load: one balanced load over every phase of ``spec`` at METERED_PF."""
+    if va <= 0.0:
+        return
+    n = len(spec.phases)
+    pf = METERED_PF
+    q = va * math.sqrt(1.0 - pf * pf)
+    s_conj = complex(va * pf, -q)
+    for p, s in phase_shares(spec, 1, n):
+        agg.phase_va[p] += va * s
+    for p, k in current_coefficients(spec, 1, n):
+        agg.line_i[p] += s_conj * k
+    key = _demand.METERED_EXISTING
+    agg.by_cat[key] = agg.by_cat.get(key, 0.0) + va
+    agg.p_w += va * pf
+    agg.q_var += q
+
+
 def _primary_neutral(node: _Node) -> bool:
     """Whether a transformer's primary current returns on the feeding system's neutral: a grounded
     wye–wye bank, or a single-phase transformer connected line to neutral."""
@@ -1177,6 +1238,13 @@ def _tree_signature(panel: Panel) -> tuple:
     )
 
 
-def compute_project(project: Project, *, include_future: bool | None = None) -> ProjectResult:
+def compute_project(
+    project: Project,
+    *,
+    include_future: bool | None = None,
+    existing_load_override_va: Mapping[str, float] | None = None,
+) -> ProjectResult:
     """Full calculation of a project (see the module docstring)."""
-    return Calculator(project, include_future=include_future).result()
+    return Calculator(
+        project, include_future=include_future, existing_load_override_va=existing_load_override_va
+    ).result()
