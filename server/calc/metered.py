@@ -55,8 +55,8 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta, tzinfo
 from enum import StrEnum
-from itertools import islice, repeat
-from operator import add, floordiv, le, lt, sub
+from itertools import compress, islice, repeat
+from operator import add, floordiv, is_, le, lt, sub
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo
@@ -652,27 +652,30 @@ class _Numbers:
         self.plain = False
 
     def convert(self, texts: list[str]) -> list[float] | None:
-        try:
-            if self.plain:
+        if self.plain:
+            try:
                 vals = list(map(float, texts))
-                if not math.isfinite(sum(vals)) or min(vals) < 0:
-                    return None
-                return vals
-            self.seen += len(texts)
-            if self.seen > 30_000 and len(self.number) * 2 > self.seen:  # hardly any repeats
-                self.plain = True
-                return self.convert(texts)
-            new = set(texts)
-            new.difference_update(self.number)
+            except ValueError:
+                return None
+            return vals if math.isfinite(sum(vals)) and min(vals) >= 0 else None
+        number = self.number
+        looked_up: list[Any] = list(map(number.get, texts))
+        if None not in looked_up:
+            return looked_up
+        self.seen += len(texts)
+        if self.seen > 30_000 and len(number) * 2 > self.seen:  # hardly any repeats: stop memoising
+            self.plain = True
+            return self.convert(texts)
+        new = set(compress(texts, map(is_, looked_up, repeat(None))))
+        try:
             fresh = dict(zip(new, map(float, new), strict=True))
         except ValueError:
             return None
-        if fresh:
-            values = fresh.values()
-            if not math.isfinite(sum(values)) or min(values) < 0:
-                return None
-            self.number.update(fresh)
-        return list(map(self.number.__getitem__, texts))
+        values = fresh.values()
+        if not math.isfinite(sum(values)) or min(values) < 0:
+            return None
+        number.update(fresh)
+        return list(map(number.__getitem__, texts))
 
 
 def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: float | None) -> _Columns:
@@ -957,7 +960,8 @@ def _analyze(
     # Time order, then one reading per instant (the higher total is kept: conservative).
     deltas = list(map(sub, islice(u, 1, None), u))
     step = deltas[0]
-    if deltas.count(step) == len(deltas) and step > step * 0:  # in order and evenly spaced: the usual case
+    regular = deltas.count(step) == len(deltas) and step > step * 0
+    if regular:  # in order and evenly spaced: the usual case
         iv = step
         deltas = []
         duplicates = 0
@@ -1093,7 +1097,14 @@ def _analyze(
     if bad:
         notes.append(f"{len(bad)} bad rows left out (listed)")
 
-    daily = _daily(w, pos, d_total, to_kva, days_sorted=wall_is_instant and in_order)
+    daily = _daily(
+        w,
+        pos,
+        d_total,
+        to_kva,
+        days_sorted=wall_is_instant and in_order,
+        step=iv if regular and wall_is_instant else None,
+    )
     return MeteredResult(
         source=source,
         rows=rows,
@@ -1125,13 +1136,28 @@ def _analyze(
 
 
 def _daily(
-    w: list[Any], pos: list[int] | range, series: list[float], to_kva: float, *, days_sorted: bool = False
+    w: list[Any],
+    pos: list[int] | range,
+    series: list[float],
+    to_kva: float,
+    *,
+    days_sorted: bool = False,
+    step: Any = None,
 ) -> tuple[DailyPeak, ...]:
     """Peak per local calendar day of the demand series (window ends ``pos`` in ``w``).
 
     ``w`` holds wall-clock datetimes or wall-clock seconds since 1970; days are proleptic
     Gregorian ordinals either way.
     """
+    if step is not None and isinstance(pos, range) and isinstance(w[0], datetime) and w[0].tzinfo is None:
+        # Evenly spaced naive readings in order: each day's first reading follows by arithmetic.
+        t0, n = w[0], len(series)
+        first_day, last_day = t0.toordinal(), w[-1].toordinal()
+        bounds = [0] + [-((t0 - datetime.fromordinal(d)) // step) for d in range(first_day + 1, last_day + 1)] + [n]
+        return tuple(
+            DailyPeak(date.fromordinal(first_day + i), max(series[bounds[i] : bounds[i + 1]]) * to_kva)
+            for i in range(last_day - first_day + 1)
+        )
     wp = w if isinstance(pos, range) else [w[p] for p in pos]
     if wp and isinstance(wp[0], datetime):
         days: list[float] = list(map(datetime.toordinal, wp))

@@ -83,6 +83,11 @@ def test_year_same_result_through_row_by_row_reader() -> None:
     fast = analyze_csv(text)
     slow = analyze_csv(text.replace("timestamp,kVA", '"timestamp","kVA"', 1))
     assert fast.to_json() == slow.to_json() | {"units_note": fast.units_note}
+    # Rows in reverse order take the sorting path (daily peaks by lookup, not by arithmetic).
+    head, *rows = text.rstrip("\n").split("\n")
+    backwards = analyze_csv("\n".join([head, *reversed(rows)]))
+    assert backwards.daily_peaks == fast.daily_peaks
+    assert backwards.peak_at == fast.peak_at and backwards.gaps == 0
 
 
 # --------------------------------------------------------------------------- data problems
