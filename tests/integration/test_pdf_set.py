@@ -137,7 +137,7 @@ def test_transformer_and_load_calculation_sheets(demo, demo_set):
         sr = result.sources[s.tag]
         page = next(p for p in pages if f"LOAD CALCULATION — SERVICE {s.tag}" in p.text)
         assert f"NFPA 70 (NEC) {project.project.code.year} edition" in page.text
-        for i, step in enumerate(sr.demand_steps, start=1):
+        for step in sr.demand_steps:
             assert step.rule in page.flat
             assert f"{fmt.va(step.connected_va)} {fmt.factor(step.factor)} {fmt.va(step.demand_va)}" in page.flat
         assert f"Design current {fmt.amps(sr.design_amps)} A" in page.flat
