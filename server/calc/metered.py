@@ -55,8 +55,8 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta, tzinfo
 from enum import StrEnum
-from itertools import compress, islice, repeat
-from operator import add, floordiv, is_, le, lt, sub
+from itertools import islice, repeat
+from operator import add, floordiv, le, lt, sub
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo
@@ -638,6 +638,11 @@ def _fast_columns(text: str, delim: str, header_row: int, plan: _Plan) -> _Colum
     return _Columns(range(first_line, first_line + nlines), times, total, phases, [], scale)
 
 
+#: Marks a string not converted yet: found by identity (list.index), and being a float it
+#: compares with the other entries at float speed.  Never stored: NaN readings are refused.
+_NEW = float("nan")
+
+
 class _Numbers:
     """Text to float for the fast path, checking every number is finite and not negative.
 
@@ -659,23 +664,32 @@ class _Numbers:
                 return None
             return vals if math.isfinite(sum(vals)) and min(vals) >= 0 else None
         number = self.number
-        looked_up: list[Any] = list(map(number.get, texts))
-        if None not in looked_up:
+        looked_up = list(map(number.get, texts, repeat(_NEW)))
+        if _NEW not in looked_up:
             return looked_up
         self.seen += len(texts)
         if self.seen > 30_000 and len(number) * 2 > self.seen:  # hardly any repeats: stop memoising
             self.plain = True
             return self.convert(texts)
-        new = set(compress(texts, map(is_, looked_up, repeat(None))))
-        try:
-            fresh = dict(zip(new, map(float, new), strict=True))
-        except ValueError:
-            return None
-        values = fresh.values()
-        if not math.isfinite(sum(values)) or min(values) < 0:
-            return None
-        number.update(fresh)
-        return list(map(number.__getitem__, texts))
+        # Fill the gaps in place: list.index finds each at C speed; each new string once.
+        find = looked_up.index
+        k = -1
+        while True:
+            try:
+                k = find(_NEW, k + 1)
+            except ValueError:
+                return looked_up
+            text = texts[k]
+            x = number.get(text)
+            if x is None:
+                try:
+                    x = float(text)
+                except ValueError:
+                    return None
+                if not 0.0 <= x < math.inf:  # negative, infinite or NaN
+                    return None
+                number[text] = x
+            looked_up[k] = x
 
 
 def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: float | None) -> _Columns:
