@@ -747,21 +747,73 @@ class _WallDays(dict[int, Any]):
     """UTC offset (a timedelta) of a zone per wall-clock day (proleptic ordinal), or ``_CHANGES``.
 
     A dict so that lookups run at C speed (``map(d.__getitem__, ...)``); a day is computed once.
-    A day whose offset is the same at both ends (both folds) is taken as constant: tz data has no
-    zone with two opposite changes within one day.
+    A day whose two midnights have the same offset is taken as constant: tz data has no zone
+    with two opposite changes within one day.
     """
 
     def __init__(self, tz: tzinfo) -> None:
         super().__init__()
         self.tz = tz
+        self._windows: dict[int, tuple[datetime, datetime, timedelta, timedelta]] = {}
+        self._midnights: dict[int, timedelta] = {}
 
     def __missing__(self, day: int) -> Any:
-        a = datetime.fromordinal(day)
-        b = a + timedelta(seconds=86399)
-        offs = {_offset(a, self.tz, 0), _offset(a, self.tz, 1), _offset(b, self.tz, 0), _offset(b, self.tz, 1)}
-        value = offs.pop() if len(offs) == 1 else _CHANGES
+        # The clocks change during this day exactly when midnight's offset differs from the
+        # next midnight's (fold 0 at midnight reads the offset in force before any change).
+        here, there = self._midnight(day), self._midnight(day + 1)
+        value = here if here == there else _CHANGES
         self[day] = value
         return value
+
+    def _midnight(self, day: int) -> timedelta:
+        off = self._midnights.get(day)
+        if off is None:
+            off = self._midnights[day] = _offset(datetime.fromordinal(day), self.tz, 0)
+        return off
+
+    def offsets(self, t: datetime) -> tuple[timedelta, timedelta]:
+        """(offset with fold=0, with fold=1) of wall-clock ``t`` on a day the offset changes.
+
+        Wall-clock times of such a day pass through three states: before the change both folds
+        give the old offset; inside the skipped or repeated window fold 0 gives the old and
+        fold 1 the new; after it both give the new.  The window is found once per day by
+        bisection over its minutes (tz data changes clocks on whole minutes).
+        """
+        day = t.toordinal()
+        window = self._windows.get(day)
+        if window is None:
+            window = self._windows[day] = self._window(day)
+        start, end, before, after = window
+        if t < start:
+            return before, before
+        if t >= end:
+            return after, after
+        return before, after
+
+    def _window(self, day: int) -> tuple[datetime, datetime, timedelta, timedelta]:
+        a = datetime.fromordinal(day)
+        tz = self.tz
+        before = _offset(a, tz, 0)
+        after = _offset(a + timedelta(seconds=86399), tz, 1)
+
+        def state(minute: int) -> int:  # 0 before, 1 inside, 2 after the change
+            t = a + timedelta(minutes=minute)
+            o0, o1 = _offset(t, tz, 0), _offset(t, tz, 1)
+            if o0 != o1:
+                return 1
+            return 0 if o0 == before and before != after else 2
+
+        def first(at_least: int) -> int:
+            lo, hi = 0, 1440
+            while lo < hi:
+                mid = (lo + hi) // 2
+                if state(mid) >= at_least:
+                    hi = mid
+                else:
+                    lo = mid + 1
+            return lo
+
+        return a + timedelta(minutes=first(1)), a + timedelta(minutes=first(2)), before, after
 
 
 def _offset(naive: datetime, tz: tzinfo, fold: int) -> timedelta:
@@ -874,7 +926,7 @@ def _instants(
     values = _row_values(cols)
     for k in _indices_of(offs, _CHANGES):  # in file order: the first pass comes first
         t = times[k]
-        o0, o1 = _offset(t, tz, 0), _offset(t, tz, 1)
+        o0, o1 = wall_days.offsets(t)
         if o0 == o1:
             offs[k] = o0
         elif o0 > o1:  # inside the fall-back hour: this wall-clock time happens twice

@@ -497,3 +497,33 @@ def test_one_bad_row_deep_in_a_year_is_found_by_line() -> None:
     r = analyze_csv("\n".join(lines))
     assert [(b.line, "not a finite number" in b.reason) for b in r.bad_rows] == [(30_002, True)]
     assert r.rows == 35_039 and r.gaps == 1 and r.peak_kva == 250.0
+
+
+@pytest.mark.parametrize(
+    "zone_name",
+    # Clock changes at 02:00 local, at 01:00 UTC, by 30 minutes, at midnight, at 00:00 and 01:00, and
+    # on a half-hour standard offset (IANA tz database shipped with Python).
+    [
+        "America/Chicago",
+        "Europe/London",
+        "Australia/Lord_Howe",
+        "America/Santiago",
+        "America/Havana",
+        "America/St_Johns",
+    ],
+)
+def test_a_year_of_local_wall_clock_times_in_zones_with_clock_changes(zone_name: str) -> None:
+    """A meter logging local time for a year: no gaps, no duplicates, every repeat found."""
+    zone = ZoneInfo(zone_name)
+    start = datetime(2023, 1, 1, tzinfo=UTC)
+    aware = [(start + timedelta(minutes=15 * i)).astimezone(zone) for i in range(35_040)]
+    wall = [t.replace(tzinfo=None) for t in aware]
+    repeats = len(wall) - len(set(wall))
+    assert repeats > 0  # each of these zones turned its clocks back in 2023
+    peak_i = next(i for i, t in enumerate(aware) if t.fold == 1)  # inside the repeated window
+    rows = [f"{t:%Y-%m-%d %H:%M},{9999 if i == peak_i else i % 5000}" for i, t in enumerate(wall)]
+    r = analyze_csv(_csv("timestamp,kVA", rows), tz=zone_name)
+    assert (r.gaps, r.duplicates, r.dst_repeats, r.readings, len(r.bad_rows)) == (0, 0, repeats, 35_040, 0)
+    assert r.peak_kva == 9999 and r.peak_at == aware[peak_i]
+    assert r.peak_at.utcoffset() == aware[peak_i].utcoffset()
+    assert r.basis == Basis.ONE_YEAR
