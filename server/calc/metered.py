@@ -467,6 +467,7 @@ class _Columns:
     phases: list[list[float]]
     bad: list[BadRow]
     scale: float = 1.0  # multiplies every value to reach kW or kVA (applied to results only)
+    wall_days: list[int] | None = None  # local day ordinal of each reading, when already known
 
 
 def _decode(data: bytes, name: str) -> tuple[str, str | None]:
@@ -671,7 +672,7 @@ class _Numbers:
         if self.seen > 30_000 and len(number) * 2 > self.seen:  # hardly any repeats: stop memoising
             self.plain = True
             return self.convert(texts)
-        # Fill the gaps in place: list.index finds each at C speed; each new string once.
+        # Fill in the new strings in place: list.index finds each at C speed.
         find = looked_up.index
         k = -1
         while True:
@@ -919,7 +920,8 @@ def _instants(
 
     # Naive wall-clock times in ``tz``: instants become naive UTC datetimes.
     wall_days = _WallDays(tz)
-    offs = list(map(wall_days.__getitem__, map(datetime.toordinal, times)))
+    ordinals = list(map(datetime.toordinal, times))
+    offs = list(map(wall_days.__getitem__, ordinals))
     dst_repeats = 0
     passes: dict[datetime, list[int | None]] = {}  # ambiguous wall time -> [first pass, second pass]
     drop: list[int] = []
@@ -955,6 +957,8 @@ def _instants(
         keep = [k for k in range(n) if k not in dropped]
         _take(cols, keep)
         offs = [offs[k] for k in keep]
+        ordinals = [ordinals[k] for k in keep]
+    cols.wall_days = ordinals
     u = list(map(sub, cols.times, offs))
     return u, cols.times, dst_repeats, bad, lambda x, k: x.replace(tzinfo=UTC).astimezone(tz)
 
@@ -1170,6 +1174,7 @@ def _analyze(
         to_kva,
         days_sorted=wall_is_instant and in_order,
         step=iv if regular and wall_is_instant else None,
+        days_known=cols.wall_days if isinstance(index, range) else None,
     )
     return MeteredResult(
         source=source,
@@ -1209,6 +1214,7 @@ def _daily(
     *,
     days_sorted: bool = False,
     step: Any = None,
+    days_known: list[int] | None = None,
 ) -> tuple[DailyPeak, ...]:
     """Peak per local calendar day of the demand series (window ends ``pos`` in ``w``).
 
@@ -1225,8 +1231,10 @@ def _daily(
             for i in range(last_day - first_day + 1)
         )
     wp = w if isinstance(pos, range) else [w[p] for p in pos]
-    if wp and isinstance(wp[0], datetime):
-        days: list[float] = list(map(datetime.toordinal, wp))
+    if days_known is not None and isinstance(pos, range):
+        days: list[float] = days_known  # type: ignore[assignment]
+    elif wp and isinstance(wp[0], datetime):
+        days = list(map(datetime.toordinal, wp))
     else:
         days = [d + _EPOCH_ORDINAL for d in map(floordiv, wp, repeat(86400.0))]
     out: list[DailyPeak] = []
