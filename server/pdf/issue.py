@@ -21,7 +21,7 @@ from server.calc.results import ProjectResult
 
 from .deltas import Deltas, diff_projects
 from .render import Progress, RenderStats, SheetCache, merge_pdfs, render_pdfs, sheet_html
-from .sheets import DRAFT, WARNINGS_KEY, IssueHistory, RevisionInfo, SheetSpec, build_sheets, printed_values
+from .sheets import DRAFT, IssueHistory, RevisionInfo, SheetSpec, build_sheets, printed_values, touched_sheets
 
 
 def compute(project: Project, include_future: bool | None = None) -> ProjectResult:
@@ -48,18 +48,6 @@ def revision_deltas(
         current_values=printed_values(current, cur_r),
         revision=revision,
     )
-
-
-def touched_sheets(deltas: Deltas, project: Project) -> frozenset[str]:
-    """Sheet keys (see :class:`~server.pdf.sheets.SheetSpec`) whose content a revision changed."""
-    keys = {"*index*"}
-    keys.update(p.tag for p in project.panels if deltas.touches(p.tag))
-    keys.update(s.tag for s in project.sources if deltas.touches(s.tag))
-    if any(deltas.touches(t.tag) for t in project.transformers):
-        keys.add("*transformers*")
-    if deltas.touches(WARNINGS_KEY):
-        keys.add("*warnings*")
-    return frozenset(keys)
 
 
 def history_for(
@@ -108,7 +96,7 @@ def history_from_revisions(
             previous_result=results[k - 1],
             current_result=results[k],
         )
-        touched[parsed[k][0].number] = touched_sheets(d, parsed[k][1])
+        touched[parsed[k][0].number] = touched_sheets(parsed[k][1], results[k], d)
     deltas = revision_deltas(
         parsed[-1][1],
         project,

@@ -432,6 +432,7 @@ class TransformerRow:
 @dataclass(frozen=True)
 class TransformerSheet:
     title: TitleBlock
+    service: str
     rows: tuple[TransformerRow, ...]
     delta_rev: int | None
 
@@ -459,6 +460,9 @@ class WarningRow:
 @dataclass(frozen=True)
 class WarningsSheet:
     title: TitleBlock
+    service: str
+    part: int  # 1-based part of this service's warnings
+    parts: int
     rows: tuple[WarningRow, ...]
     delta_rev: int | None
 
@@ -472,9 +476,13 @@ class IndexEntry:
 
 @dataclass(frozen=True)
 class CoverSheet:
+    """The cover (project, revisions, notes and the first part of the index) or an index continuation."""
+
     title: TitleBlock
     project: Project
     entries: tuple[IndexEntry, ...]
+    columns: tuple[tuple[IndexEntry, ...], ...]  # entries split into the columns printed
+    continuation: bool
     history: tuple[RevisionInfo, ...]
     include_future: bool
     code: str
@@ -485,21 +493,128 @@ class CoverSheet:
 
 # --------------------------------------------------------------------------- the set
 
+#: Rows of warnings per warnings sheet: long lists are split so that an edit re-renders (and
+#: re-caches) one short sheet rather than one long one.
+WARNINGS_PER_SHEET = 40
+
 
 @dataclass(frozen=True)
 class SheetSpec:
     """One sheet to render: which template, its context, and how to find it with ``--sheets``."""
 
-    key: str  # stable identity: panel tag, source tag, "*transformers*", "*warnings*", "*index*"
+    key: str  # stable identity: panel tag, source tag, "*transformers*:S", "*warnings*:S:n", "*index*:n"
     number: str
     title: str
     template: str
     context: Any
     aliases: frozenset[str]  # what --sheets may name it by (tags, sheet number)
+    touched: bool = True  # changed by the revision being issued
+
+
+@dataclass(frozen=True)
+class _Plan:
+    key: str
+    title: str
+    kind: str
+    aliases: frozenset[str]
+    touched: bool
+    payload: Any = None
 
 
 def _changed_keys(deltas: Deltas, tag: str) -> frozenset[str]:
     return frozenset(k for t, k in deltas.values if t == tag)
+
+
+def service_of(project: Project) -> dict[str, str]:
+    """Element tag → tag of the source at the root of its tree."""
+    parent: dict[str, str] = {}
+    for p in project.panels:
+        for c in p.circuits:
+            if c.feeds:
+                parent[c.feeds] = p.tag
+    for e in (*project.transformers, *project.panels):
+        if e.tag not in parent and e.fed_from:
+            parent[e.tag] = e.fed_from
+    sources = {s.tag for s in project.sources}
+    out: dict[str, str] = {}
+    for tag in parent:
+        node, seen = tag, set()
+        while node in parent and node not in seen:
+            seen.add(node)
+            node = parent[node]
+        if node in sources:
+            out[tag] = node
+    for s in sources:
+        out[s] = s
+    return out
+
+
+def _plans(project: Project, result: ProjectResult, deltas: Deltas) -> list[_Plan]:
+    """The sheets after the index, in order: per service its load calculation and transformer
+    schedule, then every panel, then the warnings per service in parts."""
+    service = service_of(project)
+    plans: list[_Plan] = []
+    for s in project.sources:
+        if s.tag not in result.sources:
+            continue
+        plans.append(
+            _Plan(
+                s.tag,
+                f"Load calculation summary — service {s.tag}",
+                "loadcalc",
+                frozenset({s.tag}),
+                deltas.touches(s.tag),
+            )
+        )
+        txs = [t for t in project.transformers if service.get(t.tag) == s.tag and t.tag in result.transformers]
+        if txs:
+            plans.append(
+                _Plan(
+                    f"*transformers*:{s.tag}",
+                    f"Transformer schedule — service {s.tag}",
+                    "transformers",
+                    frozenset(t.tag for t in txs) | {"transformers"},
+                    any(deltas.touches(t.tag) for t in txs),
+                    (s.tag, txs),
+                )
+            )
+    for p in project.panels:
+        if p.tag in result.panels:
+            plans.append(_Plan(p.tag, f"Panel schedule — {p.tag}", "panel", frozenset({p.tag}), deltas.touches(p.tag)))
+    warnings = all_warnings(result)
+    wchanged = _changed_keys(deltas, WARNINGS_KEY)
+    by_service: dict[str, list[CalcWarning]] = {}
+    for w in warnings:
+        by_service.setdefault(service.get(w.tag, "—"), []).append(w)
+    for svc in [s.tag for s in project.sources] + sorted(set(by_service) - {s.tag for s in project.sources}):
+        ws = by_service.get(svc)
+        if not ws:
+            continue
+        parts = [ws[k : k + WARNINGS_PER_SHEET] for k in range(0, len(ws), WARNINGS_PER_SHEET)]
+        for n, part in enumerate(parts, start=1):
+            rows = tuple(WarningRow(w, _warning_key(w) in wchanged) for w in part)
+            suffix = f" ({n} of {len(parts)})" if len(parts) > 1 else ""
+            plans.append(
+                _Plan(
+                    f"*warnings*:{svc}:{n}",
+                    f"Calculation warnings — service {svc}{suffix}",
+                    "warnings",
+                    frozenset({"warnings"}),
+                    any(r.changed for r in rows),
+                    (svc, n, len(parts), rows),
+                )
+            )
+    return plans
+
+
+def touched_sheets(project: Project, result: ProjectResult, deltas: Deltas) -> frozenset[str]:
+    """Keys of the sheets a revision changed (the index always is)."""
+    return frozenset({"*index*:1"} | {p.key for p in _plans(project, result, deltas) if p.touched})
+
+
+def _index_capacity(paper: Paper) -> int:
+    """Index rows that fit one column of a sheet body (7.6 pt type on 12.5 pt rows)."""
+    return max(10, int(((paper.height_in - 0.9 - (3.35 if not paper.landscape else 0)) * 72 - 90) / 12.5))
 
 
 def build_sheets(
@@ -509,44 +624,32 @@ def build_sheets(
     *,
     select: Sequence[str] | None = None,
 ) -> list[SheetSpec]:
-    """Every sheet of the set in order: index, load calculations, transformers, panels, warnings.
+    """Every sheet of the set in order: index, per service load calculation and transformers,
+    panels, warnings.
 
     ``select`` keeps only sheets named by tag or sheet number (the index is then included
     only when named).  Unknown names raise ``KeyError`` naming them.
     """
     info = project.project
+    paper = PAPERS[info.paper]
     deltas = history.deltas
     drev = history.current.number if history.current is not None and not history.first_issue else None
     basis = basis_text(project, result)
-    warnings = all_warnings(result)
+    plans = _plans(project, result, deltas)
 
-    plans: list[tuple[str, str, str, frozenset[str], bool]] = []  # key, title, kind, aliases, touched
-    for s in project.sources:
-        if s.tag in result.sources:
-            plans.append(
-                (
-                    s.tag,
-                    f"Load calculation summary — service {s.tag}",
-                    "loadcalc",
-                    frozenset({s.tag}),
-                    deltas.touches(s.tag),
-                )
-            )
-    if project.transformers:
-        tx_tags = frozenset(t.tag for t in project.transformers)
-        plans.append(
-            ("*transformers*", "Transformer schedule", "transformers", tx_tags, any(deltas.touches(t) for t in tx_tags))
-        )
-    for p in project.panels:
-        if p.tag in result.panels:
-            plans.append((p.tag, f"Panel schedule — {p.tag}", "panel", frozenset({p.tag}), deltas.touches(p.tag)))
-    if warnings:
-        plans.append(
-            ("*warnings*", "Calculation warnings", "warnings", frozenset({"warnings"}), deltas.touches(WARNINGS_KEY))
-        )
-
-    numbered = [("*index*", "Cover and sheet index", "index", frozenset({"index", "cover"}), True)] + plans
-    numbers = {key: f"PW-{i:03d}" for i, (key, *_rest) in enumerate(numbered)}
+    # The index: the cover holds one column of entries; each continuation sheet two.
+    per_col = _index_capacity(paper)
+    total = 1 + len(plans)
+    n_index = 1
+    while per_col + 2 * per_col * (n_index - 1) < total + (n_index - 1):
+        n_index += 1
+    index_keys = [f"*index*:{k}" for k in range(1, n_index + 1)]
+    numbers: dict[str, str] = {}
+    for k, key in enumerate(index_keys):
+        numbers[key] = "PW-000" if k == 0 else f"PW-000.{k + 1}"
+    for i, plan in enumerate(plans, start=1):
+        numbers[plan.key] = f"PW-{i:03d}"
+    fed_from_slot = {c.feeds: f"{p.tag}, circuit {c.slot}" for p in project.panels for c in p.circuits if c.feeds}
 
     def title(key: str, sheet_title: str, touched: bool) -> TitleBlock:
         revs = history.for_sheet(key, touched)
@@ -569,28 +672,29 @@ def build_sheets(
         )
 
     specs: list[SheetSpec] = []
-    for key, sheet_title, kind, aliases, touched in plans:
-        tb = title(key, sheet_title, touched)
-        aliases = aliases | {numbers[key]}
-        if kind == "panel":
-            ctx: Any = _panel_sheet(project, result, key, tb, deltas, drev)
-        elif kind == "transformers":
+    for plan in plans:
+        tb = title(plan.key, plan.title, plan.touched)
+        aliases = plan.aliases | {numbers[plan.key]}
+        if plan.kind == "panel":
+            ctx: Any = _panel_sheet(project, result, plan.key, tb, deltas, drev, fed_from_slot)
+        elif plan.kind == "transformers":
+            svc, txs = plan.payload
             ctx = TransformerSheet(
                 tb,
+                svc,
                 tuple(
                     TransformerRow(
                         t, result.transformers[t.tag], _changed_keys(deltas, t.tag), t.tag in deltas.new_elements
                     )
-                    for t in project.transformers
-                    if t.tag in result.transformers
+                    for t in txs
                 ),
                 drev,
             )
-        elif kind == "loadcalc":
-            src = project.source(key)
+        elif plan.kind == "loadcalc":
+            src = project.source(plan.key)
             assert src is not None
-            sr = result.sources[key]
-            changed = _changed_keys(deltas, key)
+            sr = result.sources[plan.key]
+            changed = _changed_keys(deltas, plan.key)
             ctx = LoadCalcSheet(
                 tb,
                 src,
@@ -601,34 +705,36 @@ def build_sheets(
                 str(info.code),
                 info.code.year,
                 str(info.occupancy),
-                tuple(e.tag for e in (*project.transformers, *project.panels) if e.fed_from == key),
+                tuple(e.tag for e in (*project.transformers, *project.panels) if e.fed_from == plan.key),
             )
         else:
-            wchanged = _changed_keys(deltas, WARNINGS_KEY)
-            ctx = WarningsSheet(tb, tuple(WarningRow(w, _warning_key(w) in wchanged) for w in warnings), drev)
-        specs.append(SheetSpec(key, numbers[key], sheet_title, f"pdf/{kind}.html", ctx, aliases))
-
-    index_tb = title("*index*", "Cover and sheet index", True)
-    entries = [
-        IndexEntry(
-            numbers["*index*"], "Cover and sheet index", str(index_tb.revision.number) if index_tb.revision else "—"
+            svc, n, parts, rows = plan.payload
+            ctx = WarningsSheet(tb, svc, n, parts, rows, drev)
+        specs.append(
+            SheetSpec(plan.key, numbers[plan.key], plan.title, f"pdf/{plan.kind}.html", ctx, aliases, plan.touched)
         )
-    ]
+
+    entries: list[IndexEntry] = []
+    index_titles = ["Cover and sheet index"] + [f"Sheet index, continued ({k})" for k in range(2, n_index + 1)]
+    index_tbs = [title(key, t, True) for key, t in zip(index_keys, index_titles, strict=True)]
+    for key, t, tb in zip(index_keys, index_titles, index_tbs, strict=True):
+        entries.append(IndexEntry(numbers[key], t, str(tb.revision.number) if tb.revision else "—"))
     for spec in specs:
         rev = spec.context.title.revision
         entries.append(IndexEntry(spec.number, spec.title, str(rev.number) if rev else "—"))
-    cover = CoverSheet(
-        index_tb, project, tuple(entries), history.all(), result.include_future, str(info.code), CAUTION, basis, drev
-    )
-    index = SheetSpec(
-        "*index*",
-        numbers["*index*"],
-        "Cover and sheet index",
-        "pdf/index.html",
-        cover,
-        frozenset({"index", "cover", numbers["*index*"]}),
-    )
-    every = [index, *specs]
+    index_specs = []
+    start = 0
+    for k, (key, t, tb) in enumerate(zip(index_keys, index_titles, index_tbs, strict=True)):
+        n_cols = 1 if k == 0 else 2
+        chunk = tuple(entries[start : start + n_cols * per_col])
+        start += len(chunk)
+        cols = tuple(chunk[c * per_col : (c + 1) * per_col] for c in range(n_cols) if chunk[c * per_col :])
+        cover = CoverSheet(
+            tb, project, chunk, cols, k > 0, history.all(), result.include_future, str(info.code), CAUTION, basis, drev
+        )
+        aliases = frozenset({numbers[key], "index"} | ({"cover"} if k == 0 else set()))
+        index_specs.append(SheetSpec(key, numbers[key], t, "pdf/index.html", cover, aliases, True))
+    every = [*index_specs, *specs]
     if select is None:
         return every
     wanted = [s.strip() for s in select if s.strip()]
@@ -639,7 +745,13 @@ def build_sheets(
 
 
 def _panel_sheet(
-    project: Project, result: ProjectResult, tag: str, tb: TitleBlock, deltas: Deltas, drev: int | None
+    project: Project,
+    result: ProjectResult,
+    tag: str,
+    tb: TitleBlock,
+    deltas: Deltas,
+    drev: int | None,
+    fed_from_slot: Mapping[str, str],
 ) -> PanelSheet:
     panel = project.panel(tag)
     assert panel is not None
@@ -647,11 +759,6 @@ def _panel_sheet(
     spec = SYSTEMS[panel.system]
     changed = _changed_keys(deltas, tag)
     sccr_ok = None if panel.sccr_ka is None or r.fault_ka is None else panel.sccr_ka >= r.fault_ka
-    fed_from_slot = ""
-    for other in project.panels:
-        for c in other.circuits:
-            if c.feeds == tag:
-                fed_from_slot = f"{other.tag}, circuit {c.slot}"
     return PanelSheet(
         title=tb,
         panel=panel,
@@ -666,5 +773,5 @@ def _panel_sheet(
         vd_feeder_limit_pct=project.project.vd_feeder_pct,
         vd_total_limit_pct=project.project.vd_total_pct,
         warnings=r.warnings,
-        fed_from_slot=fed_from_slot or (panel.fed_from or ""),
+        fed_from_slot=fed_from_slot.get(tag) or (panel.fed_from or ""),
     )

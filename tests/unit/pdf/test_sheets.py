@@ -72,7 +72,7 @@ def test_select_by_tag_or_number_and_unknown_names():
     project = _project()
     result = compute(project)
     every = build_sheets(project, result)
-    assert [s.key for s in every][0] == "*index*"
+    assert [s.key for s in every][0] == "*index*:1"
     assert {s.key for s in build_sheets(project, result, select=["PA"])} == {"PA"}
     numbers = [s.number for s in every]
     assert {s.number for s in build_sheets(project, result, select=[numbers[1]])} == {numbers[1]}
@@ -86,7 +86,7 @@ def test_sheet_revisions_list_only_the_revisions_that_changed_it():
     history = IssueHistory(
         current=RevisionInfo(3, "2026-12-03", "third"),
         earlier=(RevisionInfo(1, "2026-12-01", "first"), RevisionInfo(2, "2026-12-02", "second")),
-        touched={1: None, 2: frozenset({"*index*"})},
+        touched={1: None, 2: frozenset({"*index*:1"})},
         deltas=Deltas(revision=3),
         first_issue=False,
     )
