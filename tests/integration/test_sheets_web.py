@@ -32,8 +32,10 @@ demo_id = _web.demo_id
 
 
 @pytest.fixture(autouse=True)
-def _private_uploads(app, tmp_path):
-    app.state.sheet_uploads = UploadStore(tmp_path / "uploads")
+def _private_uploads(request, tmp_path):
+    """Each test's uploads wait in its own folder (only for tests that run the app)."""
+    if "app" in request.fixturenames:
+        request.getfixturevalue("app").state.sheet_uploads = UploadStore(tmp_path / "uploads")
 
 
 def _leaf(app, pid):
@@ -205,3 +207,57 @@ def test_index_page(client, demo_id):
     doc = parse(r.text)
     assert doc.by_id("upload-form") is not None and doc.by_id("export-xlsx") is not None
     assert "macro-enabled workbooks (.xlsm) are refused" in r.text
+
+
+def _book_two_sheets():
+    from server.sheets import read_upload
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "First"
+    ws.append(["Title block"])
+    ws.append(["Ckt", "Description", "kVA", "Amps"])
+    ws.append([1, "A", 1.5, 20])
+    second = wb.create_sheet("Second")
+    second.append(["Slot", "Name", "VA"])
+    second.append([2, "B", 300])
+    buf = io.BytesIO()
+    wb.save(buf)
+    return read_upload(buf.getvalue(), "two.xlsx")
+
+
+def test_mapping_form_changes():
+    from server.web.routes.sheets import plans_from_form
+
+    book = _book_two_sheets()
+    base = {
+        "plan-count": "1",
+        "plan-0-sheet": "First",
+        "plan-0-sheet-was": "First",
+        "plan-0-panel": "LP-1",
+        "plan-0-header_row": "2",
+        "plan-0-header_row-was": "2",
+        "plan-0-col-0": "slot",
+        "plan-0-col-1": "description",
+        "plan-0-col-2": "kva",
+        "plan-0-col-3": "breaker",
+    }
+    (plan,) = plans_from_form(book, base, None)
+    assert [r.value for r in plan.mapping.roles] == ["slot", "description", "kva", "breaker"]
+    # the control just changed takes the role from the column that had it
+    (plan,) = plans_from_form(book, {**base, "plan-0-col-3": "slot"}, "plan-0-col-3")
+    assert [r.value for r in plan.mapping.roles] == ["ignore", "description", "kva", "slot"]
+    # two load columns without a trigger: the first keeps it
+    (plan,) = plans_from_form(book, {**base, "plan-0-col-3": "amps"}, None)
+    assert [r.value for r in plan.mapping.roles] == ["slot", "description", "kva", "ignore"]
+    # a new header row re-guesses from that row
+    (plan,) = plans_from_form(book, {**base, "plan-0-header_row": "1"}, "plan-0-header_row")
+    assert plan.mapping.header_row == 0 and plan.mapping.headers[0] == "Title block"
+    # a new sheet re-guesses from that sheet
+    (plan,) = plans_from_form(book, {**base, "plan-0-sheet": "Second"}, "plan-0-sheet")
+    assert plan.sheet == "Second" and [r.value for r in plan.mapping.roles] == ["slot", "description", "va"]
+    # junk in the form is ignored, never a traceback
+    (plan,) = plans_from_form(book, {**base, "plan-0-col-2": "<b>"}, None)
+    assert plan.mapping.roles[2].value == "ignore"
+    (plan,) = plans_from_form(book, {**base, "plan-0-header_row": "x"}, None)
+    assert plan.mapping.header_row == 0
