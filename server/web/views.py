@@ -153,6 +153,22 @@ def _parents(snap: Snapshot, tag: str) -> list[str]:
     return out
 
 
+def fed_by(snap: Snapshot, tag: str) -> tuple[str, int | None] | None:
+    """(parent tag, feeding slot or None) of one element, without scanning the whole project."""
+    element = snap.model.panel(tag) or snap.model.transformer(tag)
+    if element is None:
+        return None
+    if element.fed_from:
+        return (element.fed_from, None)
+    pr = snap.result.panels.get(tag)
+    tr = snap.result.transformers.get(tag)
+    parent = pr.fed_from if pr else (tr.fed_from if tr else None)
+    feeding = snap.model.panel(parent) if parent else None
+    if feeding is None:
+        return parent_map(snap).get(tag)
+    return next(((feeding.tag, c.slot) for c in feeding.circuits if c.feeds == tag), None)
+
+
 def parent_map(snap: Snapshot) -> dict[str, tuple[str, int | None]]:
     """child tag → (parent tag, feeding slot or None)."""
     out: dict[str, tuple[str, int | None]] = {}
@@ -355,7 +371,7 @@ def panel_context(
         phases=spec.phases if spec else (),
         upstream=[badge(snap, t) for t in chain],
         own=badge(snap, tag),
-        fed_by=parent_map(snap).get(tag),
+        fed_by=fed_by(snap, tag),
         feeds=[badge(snap, c.feeds) for c in panel.circuits if c.feeds],
         header_values=hv,
         header_errors=header_errors or {},
@@ -396,7 +412,7 @@ class TransformerContext:
 
 
 def transformer_row(snap: Snapshot, t: Transformer) -> TransformerRow:
-    return TransformerRow(t, snap.result.transformers.get(t.tag), badge(snap, t.tag), parent_map(snap).get(t.tag))
+    return TransformerRow(t, snap.result.transformers.get(t.tag), badge(snap, t.tag), fed_by(snap, t.tag))
 
 
 def transformer_values(t: Transformer) -> dict[str, str]:
