@@ -1,76 +1,29 @@
 """The import mapping screen in a real browser: upload, fix a column, watch the preview change, confirm.
 
-Marker ``browser`` (opt-in locally with ``--browser``; always on in CI).  The app runs in-process
-under uvicorn on 127.0.0.1 (a free port), on a migrated temporary SQLite database holding the
-demo project; Playwright drives Debian's chromium.
+Marker ``browser`` (opt-in locally with ``--browser``; always on in CI).  The live server is the
+panel-editor browser test's fixture (uvicorn on 127.0.0.1, a temporary SQLite database holding
+the demo project); Playwright drives Debian's chromium.  Screenshots go to test-artifacts/.
 """
 
 from __future__ import annotations
 
 import io
-import json
 import shutil
-import socket
-import threading
-import time
-from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
 
-from server.config import Settings
-from server.db import migrate
-from server.web.app import create_app
-from tests.helpers import DEMO_FILE
+from server.sheets.uploads import UploadStore
+from tests.browser import test_panel_editor_browser as _editor
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = "/usr/bin/chromium"
-CHROMIUM_ARGS = [
-    "--headless=new",
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-dev-shm-usage",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-    "--no-first-run",
-]
+CHROMIUM = _editor.CHROMIUM
+CHROMIUM_ARGS = _editor.CHROMIUM_ARGS
 
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-@pytest.fixture
-def live_app(tmp_path: Path) -> Iterator[tuple[str, object, int]]:
-    """(base URL, app, demo project id) of a server on 127.0.0.1, stopped after the test."""
-    import uvicorn
-
-    from server.sheets.uploads import UploadStore
-
-    url = f"sqlite:///{tmp_path / 'pw.db'}"
-    migrate.upgrade(url)
-    app = create_app(Settings(database_url=url))
-    app.state.sheet_uploads = UploadStore(tmp_path / "uploads")
-    pid = app.state.services.import_file(json.loads(DEMO_FILE.read_text(encoding="utf-8"))).project_id
-    port = _free_port()
-    server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    deadline = time.monotonic() + 15
-    while not server.started:
-        if time.monotonic() > deadline or not thread.is_alive():
-            pytest.fail("the test server did not start within 15 s")
-        time.sleep(0.05)
-    try:
-        yield f"http://127.0.0.1:{port}", app, pid
-    finally:
-        server.should_exit = True
-        thread.join(timeout=10)
-        app.state.engine.dispose()
+# The web tests' live server: uvicorn on 127.0.0.1 (a free port), a migrated temporary SQLite
+# database holding the demo project; stopped after each test.
+live_app = _editor.live_app
 
 
 def _sheet(path: Path) -> None:
@@ -94,6 +47,7 @@ def test_mapping_screen_upload_fix_preview_confirm(live_app, tmp_path, artifacts
     from playwright.sync_api import expect, sync_playwright
 
     base, app, pid = live_app
+    app.state.sheet_uploads = UploadStore(tmp_path / "uploads")
     leaf = next(
         p
         for p in app.state.services.snapshot(pid).model.panels
