@@ -1,0 +1,1097 @@
+"""Phase balancer: propose slot moves that even out the per-phase load of one panel.
+
+Role: a pure function :func:`balance_panel` (and :func:`balance_panel_in_project`) returns a
+frozen :class:`BalanceProposal` — the moves, the loading before and after, a proven lower bound
+and the gap — without touching the input.  :func:`apply_moves` turns a panel into the proposed
+one; applying :func:`inverse_moves` undoes it exactly.  :func:`balance_transformer` balances a
+transformer secondary by choosing, per downstream panel, a cyclic rotation of its feeder phases
+and then balancing inside each panel.
+
+Standard library only.  The exact solver (mixed-integer programme on HiGHS through
+``scipy.optimize.milp``) lives in :mod:`server.calc.balance_milp` and is imported lazily; without
+scipy a local-search heuristic is used and the proposal says so (``solver``).
+
+Conventions
+-----------
+* Phase VA (trade convention, common practice): a breaker of P poles puts VA/P on each phase it
+  covers — 1-pole on its phase, 2-pole half on each of its two, 3-pole a third each.  Removed
+  loads count 0; future loads count only when ``include_future`` (else the project setting).
+* A ``feeds`` circuit carries the connected VA of its subtree (sum of the counted circuit VA
+  below it, a transformer adding its ``loss_pct``), computed by :func:`subtree_va`.
+* Neutral current (fundamental, phasor): I_N = |Σ I_k| over line-to-neutral (1-pole) circuits,
+  I_k = (VA_k / |V_p|) ∠ (arg V_p − arccos pf_k) with V_p the phase-to-neutral phasor of
+  :mod:`server.calc.systems` (lagging pf).  Line-to-line loads carry no neutral current.  Third
+  harmonic currents add in the neutral whatever the arrangement, so they do not affect the choice
+  and are left out here.
+* Slot geometry (:mod:`server.calc.systems`): odd slots left, even right, row = (slot+1)//2; a
+  P-pole breaker at slot s takes s, s+2, s+4 (successive rows, one side).
+
+What may move
+-------------
+Fixed: ``locked`` circuits, sub-feed breakers (``feeds`` set) and — unless ``allow_spaces`` —
+every slot that is not held by a movable breaker.  Movable breakers keep their pole count.
+Without ``allow_spaces`` the movable breakers are rearranged within exactly the slots they hold
+now.  With ``allow_spaces`` they may use any slot 1..``spaces`` not held by a fixed breaker; a
+``space`` entry (0 poles) a breaker lands on is moved to a slot the breakers vacated (lowest
+first), so nothing in the schedule is lost.  ``keep_sides`` keeps each breaker on its side.
+Project-file rules hold for every proposal: no 1-pole breaker on the high leg (B rows of
+``240/120 3PH 4W``), nothing beyond ``spaces``, no overlaps (1-pole loads cannot exist on a
+3-wire delta, so none are ever created there).
+
+Moves
+-----
+A move ``Move(from_slot, to_slot)`` says: the entry whose first slot is ``from_slot`` in the
+input panel gets first slot ``to_slot``.  A list of moves is a permutation applied *at once*:
+every listed entry is lifted first, then all are set down, so swaps and cycles need no
+temporary slot.  Entries not listed stay.  :func:`inverse_moves` swaps from/to; applying it to
+the result restores the input exactly (circuit order in ``Panel.circuits`` is kept; only
+``slot`` changes).  ``max_moves`` counts moved breakers; relocated ``space`` entries are listed
+but not counted.
+
+Objectives
+----------
+``max-phase`` (default): minimise the largest phase VA.  ``neutral``: minimise the phasor
+neutral current.  Then, among arrangements within ``tolerance_pct`` of the best value found,
+the number of moved breakers is minimised.  ``max_moves`` caps the moved breakers in both steps.
+"""
+
+from __future__ import annotations
+
+import cmath
+import itertools
+import math
+import time
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, replace
+from enum import StrEnum
+
+from .errors import Problem, ProjectFileError
+from .model import Circuit, Panel, Project
+from .systems import SYSTEMS, SystemKind, SystemSpec, breaker_phases, breaker_slots, slot_side
+
+#: Directions of the polygon that stands in for |I_N| in the linear programme (see
+#: :mod:`server.calc.balance_milp`): max projection ≥ |v|·cos(π/K).
+NEUTRAL_DIRECTIONS = 24
+
+
+class Objective(StrEnum):
+    MAX_PHASE = "max-phase"
+    NEUTRAL = "neutral"
+
+
+class Solver(StrEnum):
+    AUTO = "auto"  # exact MILP when scipy is importable, else the heuristic
+    MILP = "milp"
+    HEURISTIC = "heuristic"
+
+
+@dataclass(frozen=True)
+class BalanceOptions:
+    objective: Objective = Objective.MAX_PHASE
+    max_moves: int | None = None  # cap on moved breakers; None = no cap
+    keep_sides: bool = False
+    allow_spaces: bool = False
+    include_future: bool | None = None  # None = the project's setting (False for a bare panel)
+    tolerance_pct: float = 0.0  # moves are minimised among arrangements within this % of the best found
+    time_limit_s: float = 5.0  # per solver call
+    mip_gap_pct: float = 0.5  # proven gap (%) at which the search stops: heuristic certificate or exact solver
+    solver: Solver = Solver.AUTO
+
+
+@dataclass(frozen=True)
+class Move:
+    from_slot: int
+    to_slot: int
+
+    def to_json(self) -> dict[str, int]:
+        return {"from_slot": self.from_slot, "to_slot": self.to_slot}
+
+
+@dataclass(frozen=True)
+class PhaseLoading:
+    """Loading of one arrangement."""
+
+    phase_va: dict[str, float]  # trade convention, only the phases the system has
+    neutral_amps: float | None  # phasor neutral current; None when the system has no neutral
+
+    @property
+    def max_phase_va(self) -> float:
+        return max(self.phase_va.values()) if self.phase_va else 0.0
+
+    @property
+    def imbalance_pct(self) -> float:
+        """(max − min) / average × 100 over the phases; 0 with one phase or no load."""
+        values = list(self.phase_va.values())
+        if len(values) < 2:
+            return 0.0
+        avg = sum(values) / len(values)
+        return (max(values) - min(values)) / avg * 100.0 if avg > 0 else 0.0
+
+    def to_json(self) -> dict[str, object]:
+        return {
+            "phase_va": {k: round(v, 1) for k, v in self.phase_va.items()},
+            "max_phase_va": round(self.max_phase_va, 1),
+            "imbalance_pct": round(self.imbalance_pct, 2),
+            "neutral_amps": None if self.neutral_amps is None else round(self.neutral_amps, 2),
+        }
+
+
+@dataclass(frozen=True)
+class BalanceProposal:
+    """The balancer's answer for one panel.  ``panel`` is the proposed panel (input unchanged)."""
+
+    panel_tag: str
+    system: str
+    options: BalanceOptions
+    before: PhaseLoading
+    after: PhaseLoading
+    moves: tuple[Move, ...]
+    breaker_moves: int  # moved breakers (space entries excluded)
+    lower_bound_va: float  # proven lower bound on the largest phase VA (see phase_va_lower_bound)
+    lower_bound_neutral_amps: float | None  # proven bound on I_N (neutral objective only)
+    gap_pct: float | None  # (achieved − bound) / bound × 100 on the chosen objective; None if the bound is 0
+    proven_optimal: bool  # gap ≤ 1e-4 %: the objective is optimal (to solver tolerance)
+    moves_minimal: bool  # the solver proved no arrangement within tolerance needs fewer moved breakers
+    solver: str
+    panel: Panel
+    notes: tuple[str, ...] = ()
+
+    def to_json(self) -> dict[str, object]:
+        return {
+            "panel": self.panel_tag,
+            "system": self.system,
+            "objective": self.options.objective.value,
+            "before": self.before.to_json(),
+            "after": self.after.to_json(),
+            "lower_bound_va": round(self.lower_bound_va, 1),
+            "lower_bound_neutral_amps": (
+                None if self.lower_bound_neutral_amps is None else round(self.lower_bound_neutral_amps, 2)
+            ),
+            "gap_pct": None if self.gap_pct is None else round(self.gap_pct, 4),
+            "proven_optimal": self.proven_optimal,
+            "moves_minimal": self.moves_minimal,
+            "solver": self.solver,
+            "moves": [m.to_json() for m in self.moves],
+            "breaker_moves": self.breaker_moves,
+            "options": {
+                "max_moves": self.options.max_moves,
+                "keep_sides": self.options.keep_sides,
+                "allow_spaces": self.options.allow_spaces,
+                "tolerance_pct": self.options.tolerance_pct,
+            },
+            "notes": list(self.notes),
+        }
+
+
+# --------------------------------------------------------------------------- loading
+
+
+def _spec(panel: Panel) -> SystemSpec:
+    spec = SYSTEMS.get(panel.system)
+    if spec is None:
+        raise ProjectFileError([Problem(f"unknown system {panel.system!r}", panel.tag, field="system")])
+    return spec
+
+
+def circuit_load_va(circuit: Circuit, include_future: bool, feeds_va: Mapping[str, float]) -> float:
+    """VA a circuit counts with: its ``va`` (0 if absent), the subtree VA for ``feeds``, 0 if not counted."""
+    if circuit.is_space or not circuit.counts(include_future):
+        return 0.0
+    if circuit.feeds is not None:
+        return float(feeds_va.get(circuit.feeds, 0.0))
+    return float(circuit.va or 0.0)
+
+
+def _placement_phase_va(spec: SystemSpec, slot: int, poles: int, va: float) -> dict[str, float]:
+    phases = breaker_phases(spec, slot, poles)
+    share = va / len(phases)
+    out: dict[str, float] = {}
+    for p in phases:
+        out[p] = out.get(p, 0.0) + share
+    return out
+
+
+def _placement_neutral(spec: SystemSpec, slot: int, poles: int, va: float, pf: float) -> complex:
+    if poles != 1 or not spec.has_neutral or va == 0.0:
+        return 0j
+    v = spec.phase_voltage(breaker_phases(spec, slot, 1)[0])
+    return cmath.rect(va / abs(v), cmath.phase(v) - math.acos(max(-1.0, min(1.0, pf))))
+
+
+def panel_loading(
+    panel: Panel, *, include_future: bool = False, feeds_va: Mapping[str, float] | None = None
+) -> PhaseLoading:
+    """Phase VA (trade convention) and phasor neutral current of a panel as arranged."""
+    spec = _spec(panel)
+    feeds = feeds_va or {}
+    phase_va = dict.fromkeys(spec.phases, 0.0)
+    neutral = 0j
+    for c in panel.circuits:
+        va = circuit_load_va(c, include_future, feeds)
+        if va == 0.0:
+            continue
+        for p, x in _placement_phase_va(spec, c.slot, c.poles, va).items():
+            phase_va[p] += x
+        neutral += _placement_neutral(spec, c.slot, c.poles, va, c.effective_pf)
+    return PhaseLoading(phase_va, abs(neutral) if spec.has_neutral else None)
+
+
+def subtree_va(project: Project, tag: str, include_future: bool, _seen: frozenset[str] = frozenset()) -> float:
+    """Connected VA of everything fed by element ``tag`` (panel or transformer), counted loads only."""
+    if tag in _seen:  # a loop is reported by parse_project; never recurse forever
+        return 0.0
+    seen = _seen | {tag}
+    panel = project.panel(tag)
+    if panel is not None:
+        total = 0.0
+        for c in panel.circuits:
+            if c.is_space or not c.counts(include_future):
+                continue
+            total += subtree_va(project, c.feeds, include_future, seen) if c.feeds else float(c.va or 0.0)
+        return total
+    xfmr = project.transformer(tag)
+    if xfmr is None:
+        return 0.0
+    below = sum(subtree_va(project, p.tag, include_future, seen) for p in _panels_fed_from(project, tag))
+    return below * (1.0 + xfmr.loss_pct / 100.0)
+
+
+def _panels_fed_from(project: Project, tag: str) -> list[Panel]:
+    """Panels fed straight from a transformer or source ``tag`` (by ``fed_from``)."""
+    fed_by_circuit = {c.feeds for p in project.panels for c in p.circuits if c.feeds}
+    return [p for p in project.panels if p.fed_from == tag and p.tag not in fed_by_circuit]
+
+
+def feeds_va_map(project: Project, panel: Panel, include_future: bool) -> dict[str, float]:
+    return {c.feeds: subtree_va(project, c.feeds, include_future) for c in panel.circuits if c.feeds}
+
+
+# --------------------------------------------------------------------------- moves
+
+
+def inverse_moves(moves: Iterable[Move]) -> tuple[Move, ...]:
+    """The moves that undo ``moves`` (applied to the panel ``moves`` produced)."""
+    return tuple(sorted((Move(m.to_slot, m.from_slot) for m in moves), key=lambda m: m.from_slot))
+
+
+def _occupied(c: Circuit) -> tuple[int, ...]:
+    return (c.slot,) if c.is_space else breaker_slots(c.slot, c.poles)
+
+
+def apply_moves(panel: Panel, moves: Iterable[Move]) -> Panel:
+    """The panel with ``moves`` applied at once (see the module docstring).
+
+    Raises :class:`ProjectFileError` naming the panel and slot when a move names no entry, two
+    moves share a slot, or the result breaks a project-file rule (overlap, high leg, beyond
+    ``spaces``).  The input is never changed.
+    """
+    from .projectfile import check_panel  # local: projectfile imports the tables package
+
+    moves = tuple(moves)
+    problems: list[Problem] = []
+    by_slot: dict[int, int] = {}
+    for i, c in enumerate(panel.circuits):
+        by_slot.setdefault(c.slot, i)
+    targets: dict[int, int] = {}
+    seen_from: set[int] = set()
+    seen_to: set[int] = set()
+    for m in moves:
+        if m.from_slot not in by_slot:
+            problems.append(Problem(f"no circuit starts at slot {m.from_slot} to move", panel.tag, m.from_slot, "slot"))
+            continue
+        if m.from_slot in seen_from:
+            problems.append(Problem(f"slot {m.from_slot} is moved twice", panel.tag, m.from_slot, "slot"))
+            continue
+        if m.to_slot in seen_to:
+            problems.append(Problem(f"two moves land on slot {m.to_slot}", panel.tag, m.to_slot, "slot"))
+            continue
+        if m.to_slot < 1:
+            problems.append(Problem(f"slot {m.to_slot} does not exist", panel.tag, m.from_slot, "slot"))
+            continue
+        seen_from.add(m.from_slot)
+        seen_to.add(m.to_slot)
+        targets[by_slot[m.from_slot]] = m.to_slot
+    if problems:
+        raise ProjectFileError(problems)
+    circuits = tuple(replace(c, slot=targets[i]) if i in targets else c for i, c in enumerate(panel.circuits))
+    result = replace(panel, circuits=circuits)
+    check_panel(result, problems)
+    if problems:
+        raise ProjectFileError(problems)
+    return result
+
+
+# --------------------------------------------------------------------------- placement model
+
+
+@dataclass(frozen=True)
+class PlacementType:
+    """Movable breakers that are interchangeable for the objective (same poles, load, pf, side rule)."""
+
+    poles: int
+    va: float
+    pf: float
+    members: tuple[int, ...]  # indexes into Panel.circuits, ascending by original slot
+    starts: tuple[int, ...]  # feasible first slots
+    phase_va: tuple[tuple[float, ...], ...]  # per start: VA on each phase of the system (order of spec.phases)
+    neutral_a: tuple[complex, ...]  # per start: neutral current phasor contribution
+    original_starts: tuple[int, ...]  # members' current first slots
+
+
+@dataclass(frozen=True)
+class PlacementModel:
+    """The balancing problem as data, shared by the heuristic and :mod:`server.calc.balance_milp`."""
+
+    phases: tuple[str, ...]
+    region: tuple[int, ...]  # slots the movable breakers may occupy
+    fixed_phase_va: tuple[float, ...]
+    fixed_neutral_a: complex
+    has_neutral: bool
+    types: tuple[PlacementType, ...]
+    total_breakers: int
+
+    def covered(self, t: PlacementType, start: int) -> tuple[int, ...]:
+        return breaker_slots(start, t.poles)
+
+
+@dataclass(frozen=True)
+class PlacementSolution:
+    starts: tuple[tuple[int, ...], ...]  # per type, the chosen first slots (len = members)
+    dual_bound: float | None  # proven bound on the objective of this step (None if unknown)
+    optimal: bool
+
+
+def build_model(
+    panel: Panel,
+    options: BalanceOptions,
+    include_future: bool,
+    feeds_va: Mapping[str, float],
+    *,
+    multi_pole_fixed: bool = False,
+) -> PlacementModel:
+    """The placement problem of ``panel``; ``multi_pole_fixed`` keeps 2- and 3-pole breakers where they are."""
+    spec = _spec(panel)
+    phases = spec.phases
+    fixed_va = dict.fromkeys(phases, 0.0)
+    fixed_neutral = 0j
+    fixed_slots: set[int] = set()
+    movable: list[int] = []
+    for i, c in enumerate(panel.circuits):
+        is_fixed = (
+            c.locked
+            or c.feeds is not None
+            or (c.is_space and not options.allow_spaces)
+            or (multi_pole_fixed and c.poles > 1)
+        )
+        if c.is_space and options.allow_spaces:
+            continue  # a space entry is a filler the breakers may displace
+        va = circuit_load_va(c, include_future, feeds_va)
+        if is_fixed or len(phases) == 1:
+            fixed_slots.update(_occupied(c))
+            for p, x in _placement_phase_va(spec, c.slot, max(c.poles, 1), va).items():
+                fixed_va[p] += x
+            fixed_neutral += _placement_neutral(spec, c.slot, c.poles, va, c.effective_pf)
+        else:
+            movable.append(i)
+    if options.allow_spaces:
+        region = tuple(s for s in range(1, panel.spaces + 1) if s not in fixed_slots)
+    else:
+        region = tuple(sorted(s for i in movable for s in _occupied(panel.circuits[i])))
+    region_set = set(region)
+
+    groups: dict[tuple, list[int]] = {}
+    for i in movable:
+        c = panel.circuits[i]
+        va = circuit_load_va(c, include_future, feeds_va)
+        pf = round(c.effective_pf, 9) if (c.poles == 1 and spec.has_neutral and va) else 1.0
+        side = slot_side(c.slot) if options.keep_sides else ""
+        groups.setdefault((c.poles, round(va, 6), pf, side), []).append(i)
+    types: list[PlacementType] = []
+    for (poles, va, pf, side), members in sorted(
+        groups.items(), key=lambda kv: (kv[0][0], kv[0][1], kv[0][2], kv[0][3])
+    ):
+        members.sort(key=lambda i: panel.circuits[i].slot)
+        starts = []
+        for s in region:
+            if side and slot_side(s) != side:
+                continue
+            cov = breaker_slots(s, poles)
+            if any(x not in region_set for x in cov):
+                continue
+            if poles == 1 and spec.high_leg and breaker_phases(spec, s, 1)[0] == spec.high_leg:
+                continue
+            starts.append(s)
+        pv = []
+        na = []
+        for s in starts:
+            d = _placement_phase_va(spec, s, poles, va)
+            pv.append(tuple(d.get(p, 0.0) for p in phases))
+            na.append(_placement_neutral(spec, s, poles, va, pf))
+        types.append(
+            PlacementType(
+                poles=poles,
+                va=va,
+                pf=pf,
+                members=tuple(members),
+                starts=tuple(starts),
+                phase_va=tuple(pv),
+                neutral_a=tuple(na),
+                original_starts=tuple(panel.circuits[i].slot for i in members),
+            )
+        )
+    return PlacementModel(
+        phases=phases,
+        region=region,
+        fixed_phase_va=tuple(fixed_va[p] for p in phases),
+        fixed_neutral_a=fixed_neutral,
+        has_neutral=spec.has_neutral,
+        types=tuple(types),
+        total_breakers=len(movable),
+    )
+
+
+def evaluate(model: PlacementModel, starts: Sequence[Sequence[int]]) -> tuple[tuple[float, ...], complex]:
+    """Phase VA (system order) and neutral phasor of a placement given as starts per type."""
+    va = list(model.fixed_phase_va)
+    neutral = model.fixed_neutral_a
+    for t, chosen in zip(model.types, starts, strict=True):
+        index = {s: j for j, s in enumerate(t.starts)}
+        for s in chosen:
+            j = index[s]
+            for k, x in enumerate(t.phase_va[j]):
+                va[k] += x
+            neutral += t.neutral_a[j]
+    return tuple(va), neutral
+
+
+def kept_count(model: PlacementModel, starts: Sequence[Sequence[int]]) -> int:
+    return sum(len(set(t.original_starts) & set(chosen)) for t, chosen in zip(model.types, starts, strict=True))
+
+
+def objective_value(model: PlacementModel, starts: Sequence[Sequence[int]], objective: Objective) -> float:
+    va, neutral = evaluate(model, starts)
+    return abs(neutral) if objective == Objective.NEUTRAL else max(va)
+
+
+# --------------------------------------------------------------------------- lower bound
+
+
+def phase_va_lower_bound(model: PlacementModel) -> float:
+    """A lower bound on the largest phase VA over every feasible arrangement.
+
+    With F_p the fixed load on phase p (fixed breakers, plus — whatever their position — nothing
+    else) and, for movable breaker c and a set S of phases, m_c(S) = min over c's feasible starts
+    of the VA c puts on phases in S:
+
+    LB = max( max over non-empty S ⊆ phases of (Σ_{p∈S} F_p + Σ_c m_c(S)) / |S| ,
+              max over c of min over c's starts of max_p (F_p + VA_c(p)) ).
+
+    Proof.  Take any feasible arrangement with phase loads L_p.  For a set S,
+    Σ_{p∈S} L_p = Σ_{p∈S} F_p + Σ_c VA_c(S) ≥ Σ_{p∈S} F_p + Σ_c m_c(S), and the largest L_p in S
+    is at least their mean, so max_p L_p ≥ the first term for every S (S = all phases gives the
+    average, S = {p} gives F_p, S = {A, C} on a high-leg panel carries all 1-pole load).  For one
+    breaker c at start s, all other contributions are ≥ 0, so max_p L_p ≥ max_p (F_p + VA_c(p)) ≥
+    the min over c's feasible starts.  Both terms are bounds, hence their maximum.  ∎
+    """
+    n = len(model.phases)
+    best = max(model.fixed_phase_va) if n else 0.0
+    for size in range(1, n + 1):
+        for subset in itertools.combinations(range(n), size):
+            total = sum(model.fixed_phase_va[p] for p in subset)
+            for t in model.types:
+                if not t.starts:
+                    continue
+                m = min(sum(pv[p] for p in subset) for pv in t.phase_va)
+                total += m * len(t.members)
+            best = max(best, total / size)
+    for t in model.types:
+        if t.starts:
+            single = min(max(f + x for f, x in zip(model.fixed_phase_va, pv, strict=True)) for pv in t.phase_va)
+            best = max(best, single)
+    return best
+
+
+# --------------------------------------------------------------------------- heuristic
+
+
+def solve_heuristic(
+    model: PlacementModel,
+    objective: Objective,
+    *,
+    max_moves: int | None = None,
+    tolerance_pct: float = 0.0,
+    time_limit_s: float = 5.0,
+) -> PlacementSolution:
+    """Steepest descent from the present arrangement; few moves by construction.
+
+    Each step applies the single best exchange — a swap of two breakers of equal pole count (each
+    start feasible for the other) or a move of one breaker into free slots — ranked by
+    (objective, Σ phase VA²) for max-phase (the second term walks across plateaus where two
+    phases tie) or (|I_N|, largest phase VA) for neutral.  It stops when no exchange improves or
+    ``max_moves`` would be exceeded.  Of the states visited, the one with the fewest moved
+    breakers within ``tolerance_pct`` of the best value is returned.  No optimality claim; the
+    caller compares with :func:`phase_va_lower_bound`.
+    """
+    deadline = time.monotonic() + time_limit_s
+    n_ph = len(model.phases)
+    use_neutral = objective == Objective.NEUTRAL
+    tidx: list[int] = []
+    start: list[int] = []
+    for ti, t in enumerate(model.types):
+        for s in t.original_starts:
+            tidx.append(ti)
+            start.append(s)
+    orig = list(start)
+    nb = len(start)
+    pv = [dict(zip(t.starts, t.phase_va, strict=True)) for t in model.types]
+    nv = [dict(zip(t.starts, t.neutral_a, strict=True)) for t in model.types]
+    poles = [model.types[ti].poles for ti in tidx]
+    loads, neutral = evaluate(model, _starts_from(model, tidx, start))
+    loads = list(loads)
+    occ: dict[int, int] = {}
+    for b in range(nb):
+        for x in breaker_slots(start[b], poles[b]):
+            occ[x] = b
+
+    def key(ld: Sequence[float], nn: complex) -> tuple[float, float]:
+        if use_neutral:
+            return (round(abs(nn), 9), max(ld))
+        return (round(max(ld), 6), sum(x * x for x in ld))
+
+    def better(k2: tuple[float, float], cur: tuple[float, float]) -> bool:
+        # margins keep float noise (e.g. swapping two 3-pole breakers) from counting as progress
+        tol0 = 1e-7 * max(1.0, abs(cur[0]))
+        if k2[0] < cur[0] - tol0:
+            return True
+        return k2[0] <= cur[0] + tol0 and k2[1] < cur[1] - 1e-9 * max(1.0, abs(cur[1]))
+
+    moved = 0
+    current = key(loads, neutral)
+    path: list[tuple[float, int, tuple[int, ...]]] = [(current[0], 0, tuple(start))]
+    while time.monotonic() < deadline:
+        best: tuple[tuple[float, float], int, int, int, int] | None = None  # key, kind, a, b/start, dmoves
+        for a in range(nb):
+            ta, sa = tidx[a], start[a]
+            pa, na = pv[ta], nv[ta]
+            va_a, vn_a = pa[sa], na[sa]
+            for b in range(a + 1, nb):
+                tb = tidx[b]
+                if tb == ta or poles[b] != poles[a]:
+                    continue
+                sb = start[b]
+                if sb not in pa or sa not in pv[tb]:
+                    continue
+                pb = pv[tb]
+                ld = [loads[k] - va_a[k] - pb[sb][k] + pa[sb][k] + pb[sa][k] for k in range(n_ph)]
+                nn = neutral - vn_a - nv[tb][sb] + na[sb] + nv[tb][sa]
+                dm = (sb != orig[a]) - (sa != orig[a]) + (sa != orig[b]) - (sb != orig[b])
+                if max_moves is not None and moved + dm > max_moves:
+                    continue
+                k2 = key(ld, nn)
+                if better(k2, current) and (best is None or better(k2, best[0]) or (k2 == best[0] and dm < best[4])):
+                    best = (k2, 0, a, b, dm)
+            for s in model.types[ta].starts:
+                if s == sa:
+                    continue
+                if any(occ.get(x, a) != a for x in breaker_slots(s, poles[a])):
+                    continue
+                ld = [loads[k] - va_a[k] + pa[s][k] for k in range(n_ph)]
+                nn = neutral - vn_a + na[s]
+                dm = (s != orig[a]) - (sa != orig[a])
+                if max_moves is not None and moved + dm > max_moves:
+                    continue
+                k2 = key(ld, nn)
+                if better(k2, current) and (best is None or better(k2, best[0]) or (k2 == best[0] and dm < best[4])):
+                    best = (k2, 1, a, s, dm)
+        if best is None:
+            break
+        k2, kind, a, other, dm = best
+        if kind == 0:
+            b = other
+            sa, sb = start[a], start[b]
+            moves_ab = ((a, sa, sb), (b, sb, sa))
+        else:
+            moves_ab = ((a, start[a], other),)
+        for br, old, _new in moves_ab:
+            ti = tidx[br]
+            for k in range(n_ph):
+                loads[k] -= pv[ti][old][k]
+            neutral -= nv[ti][old]
+        for br, _old, new in moves_ab:
+            ti = tidx[br]
+            for k in range(n_ph):
+                loads[k] += pv[ti][new][k]
+            neutral += nv[ti][new]
+            start[br] = new
+        for br, old, _new in moves_ab:
+            for x in breaker_slots(old, poles[br]):
+                if occ.get(x) == br:
+                    del occ[x]
+        for br, _old, new in moves_ab:
+            for x in breaker_slots(new, poles[br]):
+                occ[x] = br
+        moved += dm
+        current = k2
+        path.append((current[0], moved, tuple(start)))
+    best_value = min(p[0] for p in path)
+    cap = best_value * (1.0 + tolerance_pct / 100.0) + 1e-6 * max(1.0, best_value)
+    _value, _moves, chosen = min((p for p in path if p[0] <= cap), key=lambda p: (p[1], p[0]))
+    return PlacementSolution(_starts_from(model, tidx, list(chosen)), None, False)
+
+
+def _starts_from(model: PlacementModel, tidx: Sequence[int], start: Sequence[int]) -> tuple[tuple[int, ...], ...]:
+    out: list[list[int]] = [[] for _ in model.types]
+    for ti, s in zip(tidx, start, strict=True):
+        out[ti].append(s)
+    return tuple(tuple(sorted(x)) for x in out)
+
+
+# --------------------------------------------------------------------------- realisation
+
+
+def _realise(panel: Panel, model: PlacementModel, starts: Sequence[Sequence[int]]) -> tuple[Move, ...]:
+    """Turn chosen starts per type into moves: breakers keep their slot where their type keeps it."""
+    moves: list[Move] = []
+    new_slots: set[int] = set()
+    old_slots: set[int] = set()
+    for t, chosen in zip(model.types, starts, strict=True):
+        chosen_set = set(chosen)
+        staying = {panel.circuits[i].slot for i in t.members if panel.circuits[i].slot in chosen_set}
+        free = sorted(chosen_set - staying)
+        movers = [i for i in t.members if panel.circuits[i].slot not in staying]
+        for i, s in zip(movers, free, strict=True):
+            moves.append(Move(panel.circuits[i].slot, s))
+        for i in t.members:
+            old_slots.update(breaker_slots(panel.circuits[i].slot, t.poles))
+        for s in chosen:
+            new_slots.update(breaker_slots(s, t.poles))
+    vacated = sorted(old_slots - new_slots)
+    for c in sorted((c for c in panel.circuits if c.is_space), key=lambda c: c.slot):
+        if c.slot in new_slots:
+            moves.append(Move(c.slot, vacated.pop(0)))
+    return tuple(sorted(moves, key=lambda m: m.from_slot))
+
+
+def _current_starts(model: PlacementModel) -> tuple[tuple[int, ...], ...]:
+    return tuple(tuple(sorted(t.original_starts)) for t in model.types)
+
+
+#: At or below this many movable breakers the exact solver always runs to a proven optimum
+#: (it takes well under a second there), so small panels get the exact answer.
+EXACT_BREAKERS = 14
+
+
+@dataclass(frozen=True)
+class _Outcome:
+    starts: tuple[tuple[int, ...], ...]
+    bound: float  # proven lower bound on the objective (max-phase VA or neutral A)
+    moves_minimal: bool  # the fewest moves among arrangements within tolerance, proven by the solver
+    solver: str
+
+
+def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
+    """Best objective under ``max_moves``, then the fewest moves within ``tolerance_pct`` of it.
+
+    1. Steepest descent from the present arrangement (:func:`solve_heuristic`).
+    2. For max-phase, when the result is within ``mip_gap_pct`` of :func:`phase_va_lower_bound`
+       and the panel is not small, that certificate is enough: stop.
+    3. Otherwise the exact solver (when importable): step A minimises the objective (to
+       ``mip_gap_pct``, or to optimality at ≤ EXACT_BREAKERS breakers), step B minimises moves
+       with the objective capped at (best value) × (1 + tolerance_pct / 100).  The better of the
+       answers is kept, so the exact step never makes a proposal worse.
+    """
+    objective = options.objective
+    heur = solve_heuristic(
+        model,
+        objective,
+        max_moves=options.max_moves,
+        tolerance_pct=options.tolerance_pct,
+        time_limit_s=options.time_limit_s,
+    )
+    best = heur.starts
+    value = objective_value(model, best, objective)
+    bound = phase_va_lower_bound(model) if objective == Objective.MAX_PHASE else 0.0
+    small = model.total_breakers <= EXACT_BREAKERS
+    name = "heuristic"
+    if options.solver == Solver.HEURISTIC:
+        return _Outcome(best, bound, False, name)
+    certified = objective == Objective.MAX_PHASE and value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
+    if certified and not small and options.solver == Solver.AUTO:
+        return _Outcome(best, bound, False, name)
+    try:
+        from . import balance_milp as milp
+    except ImportError:
+        if options.solver == Solver.MILP:
+            raise
+        return _Outcome(best, bound, False, name)
+    name = "heuristic+milp"
+    scale = max(1.0, bound, value)
+    step_a = milp.solve(
+        model,
+        objective,
+        max_moves=options.max_moves,
+        time_limit_s=options.time_limit_s,
+        rel_gap=1e-9 if small else options.mip_gap_pct / 100.0,
+        # a hair of weight on moves steers step A towards arrangements near the present one
+        move_weight=0.0 if small else 1e-5 * scale / max(1, model.total_breakers),
+    )
+    if step_a.starts:
+        value_a = objective_value(model, step_a.starts, objective)
+        if value_a < value - 1e-9 * scale:
+            best, value = step_a.starts, value_a
+    if step_a.dual_bound is not None:
+        bound = max(bound, step_a.dual_bound)
+    bound = min(bound, value)
+    cap = value * (1.0 + options.tolerance_pct / 100.0) + 1e-7 * scale
+    moves_minimal = False
+    if kept_count(model, best) == model.total_breakers:
+        moves_minimal = True
+    else:
+        step_b = milp.solve(model, objective, max_moves=options.max_moves, cap=cap, time_limit_s=options.time_limit_s)
+        if step_b.starts and objective_value(model, step_b.starts, objective) <= cap:
+            if kept_count(model, step_b.starts) >= kept_count(model, best):
+                best = step_b.starts
+            moves_minimal = step_b.optimal
+    return _Outcome(best, bound, moves_minimal, name)
+
+
+# --------------------------------------------------------------------------- public entry points
+
+
+def balance_panel(
+    panel: Panel,
+    options: BalanceOptions = BalanceOptions(),
+    *,
+    feeds_va: Mapping[str, float] | None = None,
+    include_future: bool = False,
+) -> BalanceProposal:
+    """Propose moves that balance ``panel``.  Pure: the input is not changed.
+
+    ``feeds_va`` gives the VA of each sub-feed circuit by the tag it feeds (0 when absent; use
+    :func:`balance_panel_in_project` to have it computed).  ``options.include_future`` overrides
+    ``include_future`` when set.  Raises :class:`ProjectFileError` if the panel itself breaks a
+    project-file rule.
+    """
+    from .projectfile import check_panel
+
+    problems: list[Problem] = []
+    check_panel(panel, problems)
+    if problems:
+        raise ProjectFileError(problems)
+    if options.max_moves is not None and options.max_moves < 0:
+        raise ProjectFileError([Problem("max_moves must be 0 or more", panel.tag, field="max_moves")])
+    if options.tolerance_pct < 0:
+        raise ProjectFileError([Problem("tolerance_pct must be 0 or more", panel.tag, field="tolerance_pct")])
+    future = include_future if options.include_future is None else options.include_future
+    feeds = dict(feeds_va or {})
+    spec = _spec(panel)
+    model = build_model(panel, options, future, feeds)
+    notes: list[str] = []
+    if len(spec.phases) == 1:
+        notes.append(f"{spec.name} has one line: there is nothing to balance")
+    if spec.kind == SystemKind.HIGH_LEG:
+        notes.append("1-pole breakers are kept off the high leg (B rows)")
+    if any(c.feeds and c.feeds not in feeds for c in panel.circuits):
+        notes.append("sub-feed loads not given are taken as 0 VA")
+
+    outcome = _solve(model, options)
+    moves = _realise(panel, model, outcome.starts)
+    proposed = apply_moves(panel, moves)
+    before = panel_loading(panel, include_future=future, feeds_va=feeds)
+    after = panel_loading(proposed, include_future=future, feeds_va=feeds)
+    lb_va = phase_va_lower_bound(model)
+    lb_neutral: float | None = None
+    if options.objective == Objective.MAX_PHASE:
+        lb_va = max(lb_va, outcome.bound)
+        achieved, lb = after.max_phase_va, lb_va
+    else:
+        lb_neutral = max(0.0, outcome.bound)
+        achieved, lb = after.neutral_amps or 0.0, lb_neutral
+    lb_va = min(lb_va, after.max_phase_va)  # solver tolerance never lifts a bound above an achieved value
+    gap: float | None
+    if lb > 1e-9:
+        gap = max(0.0, (achieved - lb) / lb * 100.0)
+    else:
+        gap = 0.0 if achieved <= 1e-6 else None
+    return BalanceProposal(
+        panel_tag=panel.tag,
+        system=panel.system,
+        options=options,
+        before=before,
+        after=after,
+        moves=moves,
+        breaker_moves=sum(1 for m in moves if not _is_space_at(panel, m.from_slot)),
+        lower_bound_va=lb_va,
+        lower_bound_neutral_amps=lb_neutral,
+        gap_pct=gap,
+        proven_optimal=gap is not None and gap <= 1e-4,
+        moves_minimal=outcome.moves_minimal,
+        solver=outcome.solver,
+        panel=proposed,
+        notes=tuple(notes),
+    )
+
+
+def _is_space_at(panel: Panel, slot: int) -> bool:
+    c = panel.circuit_at(slot)
+    return c is not None and c.is_space
+
+
+def balance_panel_in_project(project: Project, tag: str, options: BalanceOptions = BalanceOptions()) -> BalanceProposal:
+    """:func:`balance_panel` for panel ``tag`` of ``project``, with sub-feed loads computed."""
+    panel = project.panel(tag)
+    if panel is None:
+        known = ", ".join(p.tag for p in project.panels) or "none"
+        raise ProjectFileError([Problem(f"no panel with tag {tag!r} (panels: {known})", tag, field="tag")])
+    future = project.project.include_future if options.include_future is None else options.include_future
+    return balance_panel(panel, options, feeds_va=feeds_va_map(project, panel, future), include_future=future)
+
+
+# --------------------------------------------------------------------------- transformer rotation
+
+ROTATIONS = (0, 1, 2)
+
+
+def rotate_phase_va(phase_va: Mapping[str, float], rotation: int) -> dict[str, float]:
+    """Phase VA as seen upstream when the panel's feeder is landed rotated by ``rotation`` steps.
+
+    Rotation r lands the panel's phase A on upstream phase index r (A→B for r=1), B on r+1, C on
+    r+2 — a cyclic relabelling, so the phase sequence (and motor rotation direction) is kept.
+    """
+    order = ("A", "B", "C")
+    out = dict.fromkeys(order, 0.0)
+    for i, p in enumerate(order):
+        out[order[(i + rotation) % 3]] += phase_va.get(p, 0.0)
+    return out
+
+
+def best_rotations(
+    loads: Sequence[Mapping[str, float]], rotatable: Sequence[bool], fixed: Mapping[str, float] | None = None
+) -> tuple[tuple[int, ...], float]:
+    """Rotation per panel minimising the largest summed phase VA.  Exhaustive up to 3^10, else coordinate descent.
+
+    Returns (rotations, the resulting largest phase VA).  Non-rotatable panels get 0.
+    """
+    base = dict(fixed or {})
+    free = [i for i, r in enumerate(rotatable) if r]
+
+    def total(rots: Sequence[int]) -> float:
+        acc = {p: base.get(p, 0.0) for p in ("A", "B", "C")}
+        for load, r in zip(loads, rots, strict=True):
+            for p, x in rotate_phase_va(load, r).items():
+                acc[p] += x
+        return max(acc.values())
+
+    rots = [0] * len(loads)
+    best = total(rots)
+    if len(free) <= 10:
+        best_rots = list(rots)
+        for combo in itertools.product(ROTATIONS, repeat=len(free)):
+            for i, r in zip(free, combo, strict=True):
+                rots[i] = r
+            value = total(rots)
+            if value < best - 1e-9:
+                best, best_rots = value, list(rots)
+        return tuple(best_rots), best
+    improved = True
+    while improved:
+        improved = False
+        for i in free:
+            for r in ROTATIONS:
+                old = rots[i]
+                rots[i] = r
+                value = total(rots)
+                if value < best - 1e-9:
+                    best, improved = value, True
+                else:
+                    rots[i] = old
+    return tuple(rots), best
+
+
+@dataclass(frozen=True)
+class PanelRotation:
+    panel_tag: str
+    rotatable: bool
+    rotation: int  # absolute: panel phase A lands on transformer phase index `rotation`
+    feeder_rotation: int  # relative to the panel feeding it: what the installer lands differently
+    own_phase_va_before: dict[str, float]
+    own_phase_va_after: dict[str, float]
+
+
+@dataclass(frozen=True)
+class TransformerBalanceProposal:
+    transformer_tag: str
+    secondary: str
+    before_phase_va: dict[str, float]
+    after_phase_va: dict[str, float]
+    rotations: tuple[PanelRotation, ...]
+    panels: tuple[BalanceProposal, ...]
+    notes: tuple[str, ...] = ()
+
+    def to_json(self) -> dict[str, object]:
+        return {
+            "transformer": self.transformer_tag,
+            "secondary": self.secondary,
+            "before": {"phase_va": {k: round(v, 1) for k, v in self.before_phase_va.items()}},
+            "after": {"phase_va": {k: round(v, 1) for k, v in self.after_phase_va.items()}},
+            "rotations": [
+                {
+                    "panel": r.panel_tag,
+                    "rotatable": r.rotatable,
+                    "rotation": r.rotation,
+                    "feeder_rotation": r.feeder_rotation,
+                    "feeder_landing": rotation_landing(r.feeder_rotation),
+                }
+                for r in self.rotations
+            ],
+            "panels": [p.to_json() for p in self.panels],
+            "notes": list(self.notes),
+        }
+
+
+def rotation_landing(rotation: int) -> str:
+    """Installer's words for a rotation: which upstream terminal each panel phase lands on."""
+    order = ("A", "B", "C")
+    return ", ".join(f"{p}→{order[(i + rotation) % 3]}" for i, p in enumerate(order))
+
+
+def _secondary_panels(project: Project, xfmr_tag: str) -> list[tuple[Panel, str | None]]:
+    """Panels on the transformer's secondary (down to the next transformer), each with its feeding panel."""
+    out: list[tuple[Panel, str | None]] = []
+    stack: list[tuple[Panel, str | None]] = [(p, None) for p in _panels_fed_from(project, xfmr_tag)]
+    seen: set[str] = set()
+    while stack:
+        panel, parent = stack.pop(0)
+        if panel.tag in seen:
+            continue
+        seen.add(panel.tag)
+        out.append((panel, parent))
+        for c in panel.circuits:
+            child = project.panel(c.feeds) if c.feeds else None
+            if child is not None:
+                stack.append((child, panel.tag))
+    return out
+
+
+def _own_phase_va(project: Project, panel: Panel, include_future: bool) -> dict[str, float]:
+    """Phase VA of a panel's own circuits; feeders of panels on the same secondary are left out
+    (their load is counted in those panels, rotated by their own rotation)."""
+    spec = _spec(panel)
+    feeds = feeds_va_map(project, panel, include_future)
+    out = dict.fromkeys(spec.phases, 0.0)
+    for c in panel.circuits:
+        if c.feeds and project.panel(c.feeds) is not None:
+            continue
+        va = circuit_load_va(c, include_future, feeds)
+        for p, x in _placement_phase_va(spec, c.slot, max(c.poles, 1), va).items():
+            out[p] += x
+    return out
+
+
+def balance_transformer(
+    project: Project, tag: str, options: BalanceOptions = BalanceOptions()
+) -> TransformerBalanceProposal:
+    """Balance the secondary of transformer ``tag``.
+
+    Assumption (stated in every proposal's notes): a three-phase panel without a high leg, fed by
+    its own three-pole feeder from the transformer secondary or from a distribution panel on it,
+    may have its feeder conductors landed in any cyclic rotation (A→B→C), which relabels its
+    phases and keeps the phase sequence.  A high-leg panel cannot be rotated (its high leg is
+    fixed by the transformer's tapped winding), nor a single-phase one.
+
+    Steps: (1) balance inside each panel on the secondary (the options apply per panel); (2)
+    choose, for each rotatable panel, the absolute rotation minimising the transformer's largest
+    phase VA (exhaustive over 3^k for k ≤ 10 rotatable panels).  Each panel's feeder rotation is
+    its absolute rotation minus its feeding panel's.
+    """
+    xfmr = project.transformer(tag)
+    if xfmr is None:
+        known = ", ".join(t.tag for t in project.transformers) or "none"
+        raise ProjectFileError([Problem(f"no transformer with tag {tag!r} (transformers: {known})", tag, field="tag")])
+    future = project.project.include_future if options.include_future is None else options.include_future
+    spec = SYSTEMS.get(xfmr.secondary)
+    members = _secondary_panels(project, tag)
+    if not members:
+        raise ProjectFileError([Problem("feeds no panel: there is nothing to balance", tag, field="tag")])
+    rotatable_system = spec is not None and len(spec.phases) == 3 and spec.kind != SystemKind.HIGH_LEG
+
+    proposals: list[BalanceProposal] = []
+    current = project
+    for panel, _parent in members:
+        prop = balance_panel_in_project(current, panel.tag, options)
+        proposals.append(prop)
+        from .projectfile import replace_panel
+
+        current = replace_panel(current, prop.panel)
+
+    phases = spec.phases if spec else ("A",)
+    before_loads = [_own_phase_va(project, p, future) for p, _ in members]
+    after_loads = [_own_phase_va(current, current.panel(p.tag) or p, future) for p, _ in members]
+    rotatable = [rotatable_system for _ in members]
+    if rotatable_system:
+        rots, _ = best_rotations(after_loads, rotatable)
+    else:
+        rots = tuple(0 for _ in members)
+
+    def summed(loads: Sequence[Mapping[str, float]], rs: Sequence[int]) -> dict[str, float]:
+        acc = dict.fromkeys(phases, 0.0)
+        for load, r in zip(loads, rs, strict=True):
+            rotated = rotate_phase_va(load, r) if len(phases) == 3 else dict(load)
+            for p in phases:
+                acc[p] += rotated.get(p, 0.0)
+        return acc
+
+    absolute = {p.tag: r for (p, _), r in zip(members, rots, strict=True)}
+    rotations = tuple(
+        PanelRotation(
+            panel_tag=p.tag,
+            rotatable=rotatable_system,
+            rotation=absolute[p.tag],
+            feeder_rotation=(absolute[p.tag] - (absolute[parent] if parent else 0)) % 3,
+            own_phase_va_before=before_loads[i],
+            own_phase_va_after=after_loads[i],
+        )
+        for i, (p, parent) in enumerate(members)
+    )
+    notes = [
+        "a three-phase panel fed by its own feeder may have its feeder landed in a cyclic rotation "
+        "(A→B→C), which relabels its phases and keeps the phase sequence; high-leg and single-phase "
+        "panels are never rotated",
+        "feeder rotations are field instructions: the project file has no field for them, so a written "
+        "file carries only the in-panel moves",
+    ]
+    return TransformerBalanceProposal(
+        transformer_tag=tag,
+        secondary=xfmr.secondary,
+        before_phase_va=summed(before_loads, [0] * len(members)),
+        after_phase_va=summed(after_loads, rots),
+        rotations=rotations,
+        panels=tuple(proposals),
+        notes=tuple(notes),
+    )
+
+
+__all__ = [
+    "BalanceOptions",
+    "BalanceProposal",
+    "Move",
+    "Objective",
+    "PanelRotation",
+    "PhaseLoading",
+    "PlacementModel",
+    "PlacementSolution",
+    "PlacementType",
+    "Solver",
+    "TransformerBalanceProposal",
+    "apply_moves",
+    "balance_panel",
+    "balance_panel_in_project",
+    "balance_transformer",
+    "best_rotations",
+    "build_model",
+    "inverse_moves",
+    "panel_loading",
+    "phase_va_lower_bound",
+    "rotate_phase_va",
+    "subtree_va",
+]
