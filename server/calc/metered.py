@@ -740,7 +740,7 @@ def _slow_columns(text: str, delim: str, header_row: int, plan: _Plan, volts: fl
 
 
 #: Marks a day on which the zone's UTC offset changes (readings that day are placed one by one).
-_CHANGES: Any = object()
+_CHANGES: Any = timedelta.min  # a timedelta, so scanning a list of offsets compares at timedelta speed
 _EPOCH_ORDINAL = _EPOCH_DATE.toordinal()
 
 
@@ -868,39 +868,45 @@ def _row_values(cols: _Columns) -> Callable[[int], tuple[float, ...]]:
 
 
 def _instants(
-    cols: _Columns, tz: tzinfo | None, notes: list[str]
+    cols: _Columns, tz: tzinfo | None, notes: list[str], *, check_mixed: bool = True
 ) -> tuple[list[Any], list[Any], int, list[BadRow], Callable[[Any, int], datetime]]:
     """Instants and wall-clock times of every reading, in file order.
 
-    With ``tz``: UTC seconds and wall-clock seconds (floats).  Without: the datetimes themselves
-    (naive ones taken at a fixed offset), which order, subtract and compare at C speed.
+    Without ``tz``: the datetimes themselves (naive ones taken at a fixed offset), which
+    order, subtract and compare at C speed.  With ``tz``: naive timestamps become naive UTC
+    datetimes (wall clock: the timestamps); offset timestamps give UTC seconds and wall-clock
+    seconds (floats).
 
     Returns ``(u, w, dst_repeats, bad, to_datetime)``; readings found bad here are already
     removed from ``cols``.  ``to_datetime(u, k)`` gives the timestamp to show for reading ``k``.
+    With ``check_mixed=False`` a mix of naive and offset timestamps is not looked for; it then
+    shows as a ``TypeError`` when instants are subtracted, and the caller asks again.
     """
     times = cols.times
     n = len(times)
-    offsets = set(map(datetime.utcoffset, times))
     bad: list[BadRow] = []
-    if None in offsets and len(offsets) > 1:
-        # Mixed naive and offset timestamps: the first reading sets the file's form.
-        aware_first = times[0].utcoffset() is not None
-        form = "a UTC offset" if aware_first else "no UTC offset"
-        keep: list[int] = []
-        for k in range(n):
-            if (times[k].utcoffset() is not None) == aware_first:
-                keep.append(k)
-            else:
-                bad.append(
-                    BadRow(cols.lines[k], f"timestamp '{times[k].isoformat()}' differs in form from the first ({form})")
-                )
-        _take(cols, keep)
-        times = cols.times
-        n = len(times)
+    aware = times[0].utcoffset() is not None
+    if check_mixed or (aware and tz is not None):
         offsets = set(map(datetime.utcoffset, times))
+        if None in offsets and len(offsets) > 1:
+            # Mixed naive and offset timestamps: the first reading sets the file's form.
+            form = "a UTC offset" if aware else "no UTC offset"
+            keep: list[int] = []
+            for k in range(n):
+                if (times[k].utcoffset() is not None) == aware:
+                    keep.append(k)
+                else:
+                    bad.append(
+                        BadRow(
+                            cols.lines[k], f"timestamp '{times[k].isoformat()}' differs in form from the first ({form})"
+                        )
+                    )
+            _take(cols, keep)
+            times = cols.times
+            n = len(times)
 
     if tz is None:
-        if None in offsets:
+        if not aware:
             notes.append(
                 "timestamps carry no UTC offset and no time zone was given: read as a fixed offset "
                 "(a daylight-saving repeat would show as duplicates, a skipped hour as a gap)"
@@ -908,7 +914,7 @@ def _instants(
         # The datetimes themselves order, subtract and compare correctly (offsets included).
         return times, times, 0, bad, lambda x, k: cols.times[k]
 
-    if None not in offsets:  # every timestamp carries its UTC offset: show them in ``tz``
+    if aware:  # every timestamp carries its UTC offset: show them in ``tz``
         u = list(map(datetime.timestamp, times))
         utc_days = _UtcDays(tz)
         offs = list(map(utc_days.__getitem__, map(floordiv, u, repeat(86400.0))))
@@ -1012,7 +1018,16 @@ def _analyze(
     notes: list[str],
 ) -> MeteredResult:
     bad = list(cols.bad)
-    u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, notes)
+    placed: list[str] = []
+    u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, placed, check_mixed=False)
+    try:
+        deltas = list(map(sub, islice(u, 1, None), u))
+    except TypeError:  # naive and offset timestamps mixed: sort them out, then place again
+        bad += more_bad
+        placed = []
+        u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, placed)
+        deltas = list(map(sub, islice(u, 1, None), u))
+    notes += placed
     wall_is_instant = w is u  # then local days follow the instants' order
     bad += more_bad
     bad.sort(key=lambda b: b.line)
@@ -1028,7 +1043,6 @@ def _analyze(
     phases = cols.phases
 
     # Time order, then one reading per instant (the higher total is kept: conservative).
-    deltas = list(map(sub, islice(u, 1, None), u))
     step = deltas[0]
     regular = deltas.count(step) == len(deltas) and step > step * 0
     if regular:  # in order and evenly spaced: the usual case

@@ -527,3 +527,18 @@ def test_a_year_of_local_wall_clock_times_in_zones_with_clock_changes(zone_name:
     assert r.peak_kva == 9999 and r.peak_at == aware[peak_i]
     assert r.peak_at.utcoffset() == aware[peak_i].utcoffset()
     assert r.basis == Basis.ONE_YEAR
+
+
+@pytest.mark.parametrize("zone", [None, "America/Chicago"])
+def test_timestamps_mixing_offsets_and_none_are_bad_rows(zone: str | None) -> None:
+    rows = [f"2024-05-01 0{h}:00,{10 + h}" for h in range(6)]
+    rows[2] = "2024-05-01T02:00:00-05:00,50"  # line 4: has an offset while the first row has none
+    r = analyze_csv(_csv("timestamp,kVA", rows), tz=zone)
+    assert [b.line for b in r.bad_rows] == [4]
+    assert "differs in form from the first (no UTC offset)" in r.bad_rows[0].reason
+    assert r.rows == 5 and r.peak_kva == 15 and r.gaps == 1
+    flipped = [f"2024-05-01T0{h}:00:00+00:00,{10 + h}" for h in range(6)]
+    flipped[4] = "2024-05-01 04:00,50"  # line 6
+    r = analyze_csv(_csv("timestamp,kVA", flipped), tz=zone)
+    assert [b.line for b in r.bad_rows] == [6]
+    assert "(a UTC offset)" in r.bad_rows[0].reason
