@@ -47,11 +47,18 @@ def plan_sheets(
 ) -> list[SheetPlan]:
     """Which sheets go to which panels.
 
-    * ``panel`` given: one sheet (``sheet``, or the first) into that panel;
+    * ``panel`` given: one sheet (``sheet``, or the first holding a recognisable table) into that panel;
     * otherwise every sheet named after a panel of the project goes into that panel, and a
       sheet with a Panel column is split by that column (the CSV export's shape).
     """
     if panel is not None:
+        if sheet is None and mapping is None and len(book.sheets) > 1:
+            # no sheet named: the first one that holds a recognisable table (skips cover sheets)
+            for grid in book.sheets:
+                try:
+                    return [SheetPlan(sheet=grid.name, mapping=guess_mapping(grid), panel=panel)]
+                except MappingError:
+                    continue
         grid = book.sheet(sheet)
         cmap = guess_mapping(grid) if mapping is None else parse_overrides(mapping, grid)
         return [SheetPlan(sheet=grid.name, mapping=cmap, panel=panel)]

@@ -294,6 +294,22 @@ _FIELD_OF_ROLE: dict[Role, str] = {
 _PASSTHROUGH = (Role.PF, Role.CONTINUOUS, Role.FEEDS, Role.LOCKED, Role.HARMONIC)
 
 
+_CELL_UNITS: dict[str, Role] = {
+    "va": Role.LOAD_VA,
+    "w": Role.LOAD_VA,
+    "kva": Role.LOAD_KVA,
+    "kw": Role.LOAD_KVA,
+    "a": Role.LOAD_AMPS,
+    "amp": Role.LOAD_AMPS,
+    "amps": Role.LOAD_AMPS,
+}
+
+
+def _unit_suffix(text: str) -> str:
+    m = re.search(r"([A-Za-z]+)\s*$", text)
+    return m.group(1).lower() if m else ""
+
+
 @dataclass
 class _RowWork:
     raw: dict[str, object]
@@ -352,7 +368,8 @@ def _read_row(values: Sequence[CellValue], formulas: set[int], cols: list[tuple[
             if n is None:
                 w.problems.append(CellProblem(f"{_text(v)!r} is not a number", c, "va"))
             else:
-                w.load = (n, role, c)
+                # a unit typed in the cell ("1.2 kVA", "850 VA", "12 A") wins over the column's
+                w.load = (n, _CELL_UNITS.get(_unit_suffix(v), role) if isinstance(v, str) else role, c)
             w.columns["va"] = c
         elif role == Role.PHASE:
             w.phase_cell = (parse_phases(v), c)

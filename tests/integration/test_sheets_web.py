@@ -261,3 +261,14 @@ def test_mapping_form_changes():
     assert plan.mapping.roles[2].value == "ignore"
     (plan,) = plans_from_form(book, {**base, "plan-0-header_row": "x"}, None)
     assert plan.mapping.header_row == 0
+
+
+def test_preview_shows_other_stored_fields_and_marks_their_errors(client, app, demo_id):
+    leaf = _leaf(app, demo_id)
+    data = b"Ckt,Description,VA,PF,Status\n1,Fan,500,0.85,existing\n2,Pump,500,1.5,new\n"
+    r = _upload(client, demo_id, "o.csv", data, leaf.tag)
+    page = client.get(r.headers["location"])
+    assert _preview_row(page.text, 1).find("td", data_field="other").text == "pf 0.85; existing"
+    bad = _preview_row(page.text, 2)
+    assert "mark-error" in bad.find("td", data_field="other").attrs["class"]
+    assert "pf" in bad.find("td", class_="problems").text and "must be at most 1" in bad.text

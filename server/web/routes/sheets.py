@@ -25,6 +25,7 @@ from fastapi.concurrency import run_in_threadpool
 from fastapi.responses import RedirectResponse, Response
 from starlette.datastructures import UploadFile
 
+from server.calc.model import Circuit, Status
 from server.services import Conflict, NotFound, Services, Snapshot
 from server.sheets import MappingError, SheetFileError, SheetPlan, plan_sheets, preview_upload, read_upload
 from server.sheets.export import circuits_csv, project_xlsx, summary_csv
@@ -138,6 +139,7 @@ class RowView:
     va: str = ""
     breaker: str = ""
     notes: str = ""
+    other: str = ""  # the other stored fields that differ from their defaults (pf, status ...)
     marks: dict[str, str] = field(default_factory=dict)  # stored field → "error" / "warning"
     problems: tuple[tuple[str, str, str], ...] = ()  # (severity, where, message)
 
@@ -237,6 +239,23 @@ def _plan_view(k: int, plan: SheetPlan, grid: Grid, single: bool) -> PlanView:
 _FIELD_LABEL = {"breaker_amps": "trip", "va": "load", "harmonic3_pct": "3rd harmonic"}
 
 
+def _other_fields(c: Circuit) -> str:
+    parts = []
+    if c.pf is not None:
+        parts.append(f"pf {c.pf:g}")
+    if c.status != Status.NEW:
+        parts.append(c.status.value)
+    if c.continuous is not None:
+        parts.append("continuous" if c.continuous else "not continuous")
+    if c.feeds:
+        parts.append(f"feeds {c.feeds}")
+    if c.locked:
+        parts.append("locked")
+    if c.harmonic3_pct:
+        parts.append(f"3rd harmonic {c.harmonic3_pct:g} %")
+    return "; ".join(parts)
+
+
 def _row_view(row: PreviewRow) -> RowView:
     c = row.circuit
     marks: dict[str, str] = {}
@@ -264,6 +283,7 @@ def _row_view(row: PreviewRow) -> RowView:
         va="" if c.va is None else f"{c.va:,.0f}",
         breaker="" if c.breaker_amps is None else str(c.breaker_amps),
         notes=c.notes,
+        other=_other_fields(c),
         marks=marks,
         problems=tuple(problems),
     )

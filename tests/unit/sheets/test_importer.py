@@ -189,3 +189,28 @@ def test_space_and_spare_words():
 def test_html_in_descriptions_is_kept_as_plain_text(project):
     pv = _preview(_csv('Ckt,Description,VA\n1,"<script>alert(1)</script>",100\n'), "x.csv", project, panel="LP-1")
     assert pv.circuits["LP-1"][0].description == "<script>alert(1)</script>"
+
+
+def test_units_typed_in_cells_win_over_the_column():
+    # common practice: 1-pole VA = I x V_LN (120 V on 208Y/120)
+    data = _csv('Ckt,Description,Load (VA)\n1,A,"1,500"\n2,B,1.2 kVA\n3,C,10 A\n4,D,800 VA\n')
+    pv = _preview(data, "u.csv", small_project(), panel="LP-1")
+    assert [c.va for c in pv.circuits["LP-1"]] == [1500.0, 1200.0, 1200.0, 800.0]
+
+
+def test_cover_sheet_is_skipped_when_no_sheet_is_named(project):
+    import io
+
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    wb.active.title = "Cover"
+    wb.active["A1"] = "Project schedules"
+    ws = wb.create_sheet("Data")
+    ws.append(["Ckt", "Description", "VA"])
+    ws.append([1, "A", 100])
+    buf = io.BytesIO()
+    wb.save(buf)
+    book = read_upload(buf.getvalue(), "c.xlsx")
+    (plan,) = plan_sheets(book, project, panel="LP-1")
+    assert plan.sheet == "Data"
