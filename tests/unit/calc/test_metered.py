@@ -500,26 +500,28 @@ def test_one_bad_row_deep_in_a_year_is_found_by_line() -> None:
 
 
 @pytest.mark.parametrize(
-    "zone_name",
-    # Clock changes at 02:00 local, at 01:00 UTC, by 30 minutes, at midnight, at 00:00 and 01:00, and
-    # on a half-hour standard offset (IANA tz database shipped with Python).
+    ("zone_name", "year"),
+    # Clock changes at 02:00 local, at 01:00 UTC, by 30 minutes, at midnight, at 00:00 and 01:00, on a
+    # half-hour standard offset, and at 00:01 so the repeated hour spans midnight (IANA tz database
+    # shipped with Python).
     [
-        "America/Chicago",
-        "Europe/London",
-        "Australia/Lord_Howe",
-        "America/Santiago",
-        "America/Havana",
-        "America/St_Johns",
+        ("America/Chicago", 2023),
+        ("Europe/London", 2023),
+        ("Australia/Lord_Howe", 2023),
+        ("America/Santiago", 2023),
+        ("America/Havana", 2023),
+        ("America/St_Johns", 2023),
+        ("America/Goose_Bay", 2010),
     ],
 )
-def test_a_year_of_local_wall_clock_times_in_zones_with_clock_changes(zone_name: str) -> None:
+def test_a_year_of_local_wall_clock_times_in_zones_with_clock_changes(zone_name: str, year: int) -> None:
     """A meter logging local time for a year: no gaps, no duplicates, every repeat found."""
     zone = ZoneInfo(zone_name)
-    start = datetime(2023, 1, 1, tzinfo=UTC)
+    start = datetime(year, 1, 1, tzinfo=UTC)
     aware = [(start + timedelta(minutes=15 * i)).astimezone(zone) for i in range(35_040)]
     wall = [t.replace(tzinfo=None) for t in aware]
     repeats = len(wall) - len(set(wall))
-    assert repeats > 0  # each of these zones turned its clocks back in 2023
+    assert repeats > 0  # each of these zones turned its clocks back that year
     peak_i = next(i for i, t in enumerate(aware) if t.fold == 1)  # inside the repeated window
     rows = [f"{t:%Y-%m-%d %H:%M},{9999 if i == peak_i else i % 5000}" for i, t in enumerate(wall)]
     r = analyze_csv(_csv("timestamp,kVA", rows), tz=zone_name)
