@@ -71,3 +71,17 @@ def test_schema_lists_every_system() -> None:
 
     panel = project_schema()["$defs"]["Panel"]["properties"]["system"]
     assert panel["enum"] == list(SYSTEMS)
+
+
+def test_cli_prints_and_writes_the_schema(tmp_path: Path) -> None:
+    from click.testing import CliRunner
+
+    from server.cli import cli
+
+    r = CliRunner().invoke(cli, ["schema"])
+    assert r.exit_code == 0 and json.loads(r.stdout) == project_schema()
+    out = tmp_path / "s.json"
+    r = CliRunner().invoke(cli, ["schema", "--out", str(out)])
+    assert r.exit_code == 0 and out.read_text(encoding="utf-8") == schema_text()
+    r = CliRunner().invoke(cli, ["schema", "--out", str(tmp_path / "missing-dir" / "s.json")])
+    assert r.exit_code == 2 and "cannot write" in r.stderr
