@@ -748,32 +748,35 @@ class _WallDays(dict[int, Any]):
     """UTC offset (a timedelta) of a zone per wall-clock day (proleptic ordinal), or ``_CHANGES``.
 
     A dict so that lookups run at C speed (``map(d.__getitem__, ...)``); a day is computed once.
-    A day whose two midnights have the same offset (and neither is skipped or repeated) is
-    taken as constant: tz data has no zone with two opposite changes within one day.
+    A day is taken as constant when its midnights agree and the next midnight is not in a
+    change window: tz data has no zone with two opposite changes within one day.
     """
 
     def __init__(self, tz: tzinfo) -> None:
         super().__init__()
         self.tz = tz
         self._windows: dict[int, tuple[datetime, datetime, timedelta, timedelta]] = {}
-        self._midnights: dict[int, tuple[timedelta, timedelta]] = {}
+        self._midnights: dict[tuple[int, int], timedelta] = {}
 
     def __missing__(self, day: int) -> Any:
-        # The clocks change during this day exactly when its two midnights differ, or when a
-        # midnight itself is skipped or repeated (a change window spanning midnight).  At a
-        # midnight inside a window fold 0 and fold 1 differ; elsewhere they agree.
-        h0, h1 = self._midnight(day)
-        t0, t1 = self._midnight(day + 1)
-        value = h0 if h0 == h1 == t0 == t1 else _CHANGES
+        # The clocks change during this day when its two midnights differ (fold 0 at a midnight
+        # reads the offset in force before any change), or when the next midnight lies inside
+        # a change window that starts today (there fold 1 differs from fold 0; checked only
+        # when the day after changes, to keep to one zone look-up per day).
+        here, there = self._midnight(day, 0), self._midnight(day + 1, 0)
+        if here != there or (self._midnight(day + 2, 0) != there and self._midnight(day + 1, 1) != there):
+            value = _CHANGES
+        else:
+            value = here
         self[day] = value
         return value
 
-    def _midnight(self, day: int) -> tuple[timedelta, timedelta]:
-        offs = self._midnights.get(day)
-        if offs is None:
-            a = datetime.fromordinal(day)
-            offs = self._midnights[day] = (_offset(a, self.tz, 0), _offset(a, self.tz, 1))
-        return offs
+    def _midnight(self, day: int, fold: int) -> timedelta:
+        key = (day, fold)
+        off = self._midnights.get(key)
+        if off is None:
+            off = self._midnights[key] = _offset(datetime.fromordinal(day), self.tz, fold)
+        return off
 
     def offsets(self, t: datetime) -> tuple[timedelta, timedelta]:
         """(offset with fold=0, with fold=1) of wall-clock ``t`` on a day the offset changes.
