@@ -356,14 +356,10 @@ def _slot_info(spec: SystemSpec) -> dict[tuple[int, int], _SlotInfo]:
     return table
 
 
-def _circuit_result(slot, slots, phases, phase_va, amps, counted, load_va) -> CircuitResult:
-    """A CircuitResult built without the frozen-dataclass __init__ (one per circuit: 21 000 in a
-    large project); identical to ``CircuitResult(...)``."""
-    r = object.__new__(CircuitResult)
-    r.__dict__.update(
-        slot=slot, slots=slots, phases=phases, phase_va=phase_va, amps=amps, counted=counted, load_va=load_va
-    )
-    return r
+#: CircuitResults are built without the frozen-dataclass ``__init__`` (one per circuit: 21 000
+#: in a large project): ``_new(CircuitResult)`` then its ``__dict__`` filled with every field,
+#: which gives an object identical to ``CircuitResult(...)``.
+_new = object.__new__
 
 
 _REMOVED = Status.REMOVED
@@ -412,7 +408,17 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
         amps = va * si.inv_v
         status = c.status
         counted = status is not _REMOVED and (include_future or status is not _FUTURE)
-        results.append(_circuit_result(slot, si.slots, si.phases, {p: va * s for p, s in si.shares}, amps, counted, va))
+        r = _new(CircuitResult)
+        r.__dict__.update(
+            slot=slot,
+            slots=si.slots,
+            phases=si.phases,
+            phase_va={si.ln_phase: va} if poles == 1 else {p: va * s for p, s in si.shares},
+            amps=amps,
+            counted=counted,
+            load_va=va,
+        )
+        results.append(r)
         cont = c.continuous
         if cont is None:
             cont = catv in _CONTINUOUS_DEFAULT
