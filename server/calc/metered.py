@@ -276,11 +276,13 @@ def _classify(index: int, name: str) -> _Column | None:
         return _Column(index, name, "current", Quantity.AMPS, 1.0, "A", phase)
     if unit_tok in _VOLT_WORDS:
         ll: bool | None = None
-        if any(t in _LL_WORDS for t in rest):
-            ll = True
-        elif any(t in _LN_WORDS for t in rest):
-            ll = False
+        if any(t in _LL_WORDS for t in rest) or rest.count("l") >= 2 or sum(t in ("a", "b", "c") for t in rest) >= 2:
+            ll = True  # "V_LL", "V L-L", "V_AB", "Volts A-B"
+        elif any(t in _LN_WORDS for t in rest) or "n" in rest:
+            ll = False  # "V_LN", "V_AN", "Voltage A-N"
         vphase = next((_VOLTS_LN_BY_PHASE[t] for t in rest if t in _VOLTS_LN_BY_PHASE), None)
+        if vphase is None and ll is False:
+            vphase = phase
         return _Column(index, name, "voltage", None, 1000.0 if unit_tok == "kv" else 1.0, "V", vphase, ll)
     if any(t in ("timestamp", "datetime") for t in toks) or ("date" in toks and "time" in toks):
         return _Column(index, name, "time")

@@ -544,3 +544,18 @@ def test_timestamps_mixing_offsets_and_none_are_bad_rows(zone: str | None) -> No
     r = analyze_csv(_csv("timestamp,kVA", flipped), tz=zone)
     assert [b.line for b in r.bad_rows] == [6]
     assert "(a UTC offset)" in r.bad_rows[0].reason
+
+
+def test_amps_with_per_phase_line_to_neutral_voltages() -> None:
+    rows = ["2024-01-01 00:00,100,90,80,118,120,122", "2024-01-01 00:15,110,95,85,119,121,123"]
+    r = analyze_csv(
+        _csv("timestamp,Phase A Current,Phase B Current,Phase C Current,Voltage A-N,Voltage B-N,V_CN", rows)
+    )
+    # S = Σ V_LN × I per phase (definition of apparent power; common practice)
+    assert_close(r.peak_kva, (119 * 110 + 121 * 95 + 123 * 85) / 1000)
+    assert r.phases == ("A", "B", "C")
+    assert not any("taken as line-to-neutral" in n for n in r.notes)  # every voltage named its kind
+    r = analyze_csv(
+        _csv("timestamp,I_A,I_B,I_C,Volts A-B", ["2024-01-01 00:00,10,10,10,480", "2024-01-01 00:15,20,20,20,480"])
+    )
+    assert_close(r.peak_kva, 480 / 3**0.5 * 60 / 1000)  # line-to-line voltage ÷ √3 per phase
