@@ -590,6 +590,9 @@ class Calculator:
             phases = parent.spec.phases[:2]
         node.primary_phases = phases
         node.pole_phases = phases
+        # A single-phase winding sits across the feeding system's lines (or line and neutral):
+        # its phasors, not the primary string (which only states the voltage), place it.
+        node.primary = parent.spec
         if len(phases) >= 2:
             node.v_pri_winding = parent.spec.nominal_v_ll()
         else:

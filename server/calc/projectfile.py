@@ -28,7 +28,7 @@ from enum import StrEnum
 from pathlib import Path
 from typing import Any, TypeVar
 
-from .errors import ProjectFileError, Problem
+from .errors import Problem, ProjectFileError
 from .model import (
     FORMAT_NAME,
     FORMAT_VERSION,
@@ -606,7 +606,15 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
                 )
         else:
             pri, upspec = SYSTEMS.get(element.primary), SYSTEMS.get(up_system)
-            if pri and upspec and abs(pri.v_ll - upspec.v_ll) > 0.5:
+            if pri and upspec and len(pri.phases) == 3 and len(upspec.phases) < 3:
+                problems.append(
+                    Problem(
+                        f"a three-phase primary ({element.primary}) cannot be fed from {up_system} of {up}",
+                        element.tag,
+                        field="primary",
+                    )
+                )
+            elif pri and upspec and abs(pri.v_ll - upspec.v_ll) > 0.5:
                 problems.append(
                     Problem(
                         f"primary {element.primary} does not match {up_system} of {up}, which feeds it",

@@ -418,3 +418,24 @@ def test_neutral_overload_warning() -> None:
     # 60 A returns on a 10 AWG neutral (35 A at 75 °C, NFPA 70-2023 Table 310.16, from memory).
     assert_close(res.panels["NP"].neutral_amps, 60.0)
     assert "neutral-overload" in _codes(res.panels["NP"])
+
+
+def test_single_phase_transformer_whose_primary_string_is_single_phase() -> None:
+    # A 120/240 V primary string on a 240 V delta panel, fed from lines B–C: the winding sits
+    # across B–C of the panel (the string states only its voltage): 4.8 kVA → 20 A on B and C.
+    data = {
+        "format": "panelwright.project",
+        "version": 1,
+        "project": {"name": "1-phase primary (invented)"},
+        "sources": [{"tag": "S", "system": "240 3PH 3W"}],
+        "transformers": [{"tag": "X", "kva": 10, "primary": "120/240 1PH 3W", "secondary": "120 1PH 2W"}],
+        "panels": [
+            {"tag": "D", "system": "240 3PH 3W", "fed_from": "S", "circuits": [{"slot": 3, "poles": 2, "feeds": "X"}]},
+            {"tag": "Q", "system": "120 1PH 2W", "fed_from": "X", "circuits": [{"slot": 1, "va": 4800, "pf": 1.0}]},
+        ],
+    }
+    res = compute_project(loads_project(json.dumps(data)))
+    amps = res.panels["D"].line_amps
+    assert amps["A"] < 1e-9
+    assert_close(amps["B"], 20.0)
+    assert_close(amps["C"], 20.0)

@@ -231,3 +231,13 @@ def test_one_pole_feeding_breaker_on_a_delta_is_refused() -> None:
     _one(d, tag="P1", slot=1, field="poles", words=("no neutral",))
     d["panels"][0]["circuits"] = [{"slot": 1, "poles": 2, "feeds": "X"}]
     assert parse_project(d).transformers[0].tag == "X"
+
+
+def test_three_phase_primary_on_a_single_phase_source_is_refused() -> None:
+    d = _base()
+    d["sources"][0]["system"] = "120/240 1PH 3W"
+    d["panels"][0]["system"] = "120/240 1PH 3W"
+    d["transformers"].append(
+        {"tag": "X", "kva": 15, "primary": "240 3PH 3W", "secondary": "208Y/120 3PH 4W", "fed_from": "S"}
+    )
+    _one(d, tag="X", field="primary", words=("three-phase primary",))
