@@ -334,6 +334,10 @@ class Services:
 
         audit.install(sessions)
         revisions.install_guard(sessions)
+        from server import audit, revisions  # every write is audited; issued revisions refuse updates
+
+        audit.install(sessions)
+        revisions.install_guard(sessions)
 
     @classmethod
     def from_settings(cls, settings: Settings) -> Services:

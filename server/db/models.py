@@ -212,3 +212,55 @@ class Revision(Base):
     content_hash: Mapped[str] = mapped_column(String(64))
 
     project: Mapped[Project] = relationship(back_populates="revisions")
+
+# --------------------------------------------------------------------------- team use (accounts, audit)
+
+
+class User(Base):
+    """An account: a role (``admin``, ``engineer``, ``reviewer``) and an Argon2 password hash."""
+
+    __tablename__ = "users"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(60), unique=True)
+    role: Mapped[str] = mapped_column(String(12))
+    password_hash: Mapped[str] = mapped_column(String(200))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow)
+    password_changed_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow)
+
+
+class AuthSession(Base):
+    """A signed-in browser: keyed by the SHA-256 of its cookie token (the token itself is never stored)."""
+
+    __tablename__ = "auth_sessions"
+
+    id: Mapped[str] = mapped_column(String(64), primary_key=True)
+    user_id: Mapped[int] = mapped_column(ForeignKey("users.id", ondelete="CASCADE"), index=True)
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow)
+    expires_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), index=True)
+    address: Mapped[str] = mapped_column(String(64), default="")
+
+
+class AuditEvent(Base):
+    """One change: who, when, what (the changed fields before and after, as JSON)."""
+
+    __tablename__ = "audit_events"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow, index=True)
+    user_name: Mapped[str] = mapped_column(String(60), index=True)
+    project_id: Mapped[int | None] = mapped_column(Integer, index=True)
+    panel_tag: Mapped[str | None] = mapped_column(String(40), index=True)
+    action: Mapped[str] = mapped_column(String(20))
+    target: Mapped[str] = mapped_column(String(120))
+    before_json: Mapped[str | None] = mapped_column(Text)
+    after_json: Mapped[str | None] = mapped_column(Text)
+
+
+class ServerKey(Base):
+    """Secrets the server made for itself (the session-signing key when none is configured)."""
+
+    __tablename__ = "server_keys"
+
+    name: Mapped[str] = mapped_column(String(40), primary_key=True)
+    value: Mapped[str] = mapped_column(String(200))
