@@ -33,6 +33,25 @@ class Settings(BaseSettings):
     calc_cache_size: int = Field(
         8, ge=0, description="How many projects keep an in-memory calculator for incremental recompute"
     )
+    # Team use (accounts, sessions, backups): see docs/lan.md.
+    single_user: bool = Field(
+        False, description="One person on this machine: no sign-in, every request acts as a local admin (loopback only)"
+    )
+    secret_key: str | None = Field(
+        None, description="Signs session cookies; unset, the server makes one and keeps it in the database"
+    )
+    session_hours: float = Field(12.0, gt=0, description="How long a sign-in lasts before the session expires")
+    cookie_secure: bool = Field(
+        False, description="Mark the session cookie Secure (set it when a reverse proxy serves HTTPS)"
+    )
+    login_max_failures: int = Field(
+        5, ge=1, description="Failed sign-ins allowed per user name within the window (4× that per address)"
+    )
+    login_window_s: int = Field(300, ge=1, description="Window of the failed sign-in limit, in seconds")
+    backup_dir: str | None = Field(
+        None, description="Folder of the daily backups `serve` makes (unset: no scheduled backup)"
+    )
+    backup_keep: int = Field(14, ge=1, description="How many daily backups to keep in the backup folder")
 
     @field_validator("database_url")
     @classmethod

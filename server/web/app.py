@@ -21,7 +21,8 @@ from server.config import Settings
 from server.db.migrate import ensure_migrated
 from server.db.session import make_engine, make_sessionmaker
 from server.services import Conflict, NotFound, ServiceError, Services
-from server.web.routes import api, panels, projects, sheets, transformers, tree, warnings
+from server.web.routes import api, growth, panels, projects, sheets, transformers, tree, warnings
+from server.web.team import DEFAULT_RULE, install_team
 from server.web.templating import STATIC_DIR, make_templates
 from server.web.views import Page
 
@@ -45,12 +46,13 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.services = Services(make_sessionmaker(engine), cache_size=settings.calc_cache_size)
     app.state.templates = make_templates()
     app.mount("/static", StaticFiles(directory=str(STATIC_DIR)), name="static")
-    for module in (projects, tree, panels, transformers, warnings, sheets, api):
-        app.include_router(module.router)
+    install_team(app, settings)  # sign-in, roles, CSRF, audit trail, history, revisions, presence
+    for module in (projects, tree, panels, transformers, warnings, sheets, growth, api):
+        app.include_router(module.router, dependencies=DEFAULT_RULE)
     if settings.bench_endpoints:
         from server.web.routes import bench
 
-        app.include_router(bench.router)
+        app.include_router(bench.router, dependencies=DEFAULT_RULE)
     _add_error_handlers(app)
     return app
 

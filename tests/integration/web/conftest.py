@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import shutil
 import uuid
 from collections.abc import Iterator
@@ -89,8 +90,29 @@ def app(db_url: str) -> Iterator:
 
 @pytest.fixture
 def client(app) -> Iterator[TestClient]:
+    """A browser signed in as an engineer, sending the page's CSRF token on every request."""
     with TestClient(app, raise_server_exceptions=False) as c:
+        sign_in(c, app, "engineer")
         yield c
+
+
+def sign_in(c: TestClient, app, role: str, name: str | None = None) -> None:
+    """Create a user with ``role`` (named after it unless ``name``), sign ``c`` in, and keep its CSRF token."""
+    from server.auth.accounts import add_user, list_users
+
+    name = name or role
+    if name not in {u.name for u in list_users(app.state.services.sessions)}:
+        add_user(app.state.services.sessions, name=name, role=role, password=TEST_PASSWORD)
+    c.headers.pop("X-CSRF-Token", None)
+    page = c.get("/login")
+    token = re.search(r'name="csrf_token" value="([0-9a-f]+)"', page.text).group(1)
+    r = c.post("/login", data={"name": name, "password": TEST_PASSWORD, "csrf_token": token}, follow_redirects=False)
+    assert r.status_code == 303, r.text
+    home = c.get("/")
+    c.headers["X-CSRF-Token"] = re.search(r'<meta name="csrf-token" content="([0-9a-f]+)"', home.text).group(1)
+
+
+TEST_PASSWORD = "correct-horse-battery"
 
 
 @pytest.fixture
