@@ -38,6 +38,7 @@ from server.config import Settings
 from server.db import models as db
 from server.db.migrate import ensure_migrated
 from server.db.session import make_engine, make_sessionmaker
+from server.repo import metered as metered_repo
 from server.repo import projects as repo
 
 # --------------------------------------------------------------------------- errors
@@ -334,10 +335,6 @@ class Services:
 
         audit.install(sessions)
         revisions.install_guard(sessions)
-        from server import audit, revisions  # every write is audited; issued revisions refuse updates
-
-        audit.install(sessions)
-        revisions.install_guard(sessions)
 
     @classmethod
     def from_settings(cls, settings: Settings) -> Services:
@@ -386,12 +383,13 @@ class Services:
                 raise NotFound(f"project {project_id} does not exist")
             version = row.data_version
             data = project_file(row)
+            metered = metered_repo.active_overrides_va(s, project_id=project_id)  # NEC 220.87 existing loads
             # Someone may have written between the queries: only a stable version is cached.
             if repo.data_version(s, project_id=project_id) == version:
                 break
             s.expire_all()
         model = pf.parse_project(data, source=f"project {project_id} in the database")
-        calculator = Calculator(model)
+        calculator = Calculator(model, existing_load_override_va=metered)
         entry = _Entry(version, model, calculator, calculator.result())
         self.cache.put(project_id, entry)
         return entry
