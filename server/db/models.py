@@ -213,6 +213,7 @@ class Revision(Base):
 
     project: Mapped[Project] = relationship(back_populates="revisions")
 
+
 # --------------------------------------------------------------------------- team use (accounts, audit)
 
 
@@ -264,3 +265,30 @@ class ServerKey(Base):
 
     name: Mapped[str] = mapped_column(String(40), primary_key=True)
     value: Mapped[str] = mapped_column(String(200))
+
+
+class MeteredLoad(Base):
+    """An existing load from metered data (NEC 220.87) for one node of a project.
+
+    The figure is the analysis' existing load (maximum demand × 125 %); while ``active`` the
+    calculation uses it in place of the existing circuits below that node (see
+    :mod:`server.calc.engine`).  Rows are never edited except for ``active``: a new upload adds
+    a new row and deactivates the older ones of the same node.
+    """
+
+    __tablename__ = "metered_load"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    project_id: Mapped[int] = mapped_column(ForeignKey("projects.id", ondelete="CASCADE"), index=True)
+    node_tag: Mapped[str] = mapped_column(String(40))
+    existing_load_kva: Mapped[float] = mapped_column(Float)
+    basis: Mapped[str] = mapped_column(String(40))
+    peak_kva: Mapped[float] = mapped_column(Float)
+    peak_at: Mapped[str] = mapped_column(String(40))  # ISO 8601 as read from the file (zone kept if given)
+    readings: Mapped[int] = mapped_column(Integer, default=0)
+    bad_rows: Mapped[int] = mapped_column(Integer, default=0)
+    coverage_days: Mapped[float] = mapped_column(Float, default=0.0)
+    file_name: Mapped[str] = mapped_column(String(255), default="")
+    uploaded_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow)
+    uploaded_by: Mapped[str] = mapped_column(String(60), default="")
+    active: Mapped[bool] = mapped_column(Boolean, default=True)
