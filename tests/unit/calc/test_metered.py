@@ -559,3 +559,13 @@ def test_amps_with_per_phase_line_to_neutral_voltages() -> None:
         _csv("timestamp,I_A,I_B,I_C,Volts A-B", ["2024-01-01 00:00,10,10,10,480", "2024-01-01 00:15,20,20,20,480"])
     )
     assert_close(r.peak_kva, 480 / 3**0.5 * 60 / 1000)  # line-to-line voltage ÷ √3 per phase
+
+
+def test_uploaded_bytes_with_bom_and_latin1() -> None:
+    text = _csv("timestamp,kVA", ["2024-01-01 00:00,5", "2024-01-01 00:15,7"])
+    r = analyze_csv(("\ufeff" + text).encode("utf-8"), name="upload.csv")
+    assert r.source == "upload.csv" and r.peak_kva == 7
+    r = analyze_csv(("Compteur é\n" + text).encode("latin-1"), name="upload.csv")
+    assert r.peak_kva == 7 and "read as Latin-1" in r.notes[0]
+    with pytest.raises(MeteredDataError, match="upload.csv: the file is empty"):
+        analyze_csv(b"", name="upload.csv")
