@@ -9,6 +9,7 @@ recompute.
 
 from __future__ import annotations
 
+import json
 import random
 from dataclasses import replace
 
@@ -19,7 +20,7 @@ from server.calc.engine import Calculator, compute_project
 from server.calc.loads import circuit_currents
 from server.calc.model import Category, Circuit, Panel, Project, ProjectInfo, Source, Status
 from server.calc.projectfile import dump_project, parse_project, replace_panel
-from server.calc.systems import SYSTEMS
+from server.calc.systems import SYSTEMS, slot_phase
 from tests.benchmarks.generate import generate_project
 from tests.helpers import assert_close
 
@@ -172,3 +173,124 @@ def test_incremental_equals_full(seed, edits) -> None:
         assert incremental.to_json() == full.to_json()
     # The edited project is still a valid project file.
     assert parse_project(dump_project(calc.project)) == calc.project
+
+
+# --------------------------------------------------------------------------- random mixed-system projects
+
+_LV = [name for name, spec in SYSTEMS.items() if not spec.medium_voltage]
+
+
+def _random_circuits(rng: random.Random, system: str, count: int, feeds: list[tuple[str, int]]) -> tuple[list, int]:
+    spec = SYSTEMS[system]
+    out: list[dict] = []
+    left, right = 1, 2
+    for tag, poles in feeds:
+        out.append({"slot": left, "poles": poles, "feeds": tag, "breaker_amps": rng.choice([None, 100, 400])})
+        left += 2 * poles
+    for _ in range(count):
+        poles = min(rng.choice([1, 1, 2, 3]), len(spec.phases))
+        if poles == 1 and not spec.has_neutral:
+            poles = 2
+        on_left = rng.random() < 0.5
+        slot = left if on_left else right
+        if poles == 1 and spec.high_leg and slot_phase(spec, slot) == spec.high_leg:
+            continue
+        if on_left:
+            left += 2 * poles
+        else:
+            right += 2 * poles
+        out.append(
+            {
+                "slot": slot,
+                "poles": poles,
+                "va": round(rng.uniform(0, 9000)),
+                "pf": rng.choice([None, 0.8, 1.0]),
+                "category": rng.choice([c.value for c in Category]),
+                "harmonic3_pct": rng.choice([0, 0, 40]),
+                "status": rng.choice(["new", "existing", "future", "removed"]),
+                "breaker_amps": rng.choice([None, 20, 50]),
+            }
+        )
+    return out, min(max(42, left + 2, right + 2), 200)
+
+
+def _random_project(seed: int) -> Project:
+    """Any system on the source, transformers of every winding pair, panels and sub-panels."""
+    rng = random.Random(seed)
+    source = rng.choice([*_LV, "12470Y/7200 3PH 4W", "4160 3PH 3W"])
+    src = SYSTEMS[source]
+    data: dict = {
+        "format": "panelwright.project",
+        "version": 1,
+        "project": {"name": "random (invented)", "include_future": rng.random() < 0.5},
+        "sources": [{"tag": "S", "system": source, "fault_ka": rng.choice([None, 22, 65]), "x_over_r": 6}],
+        "transformers": [],
+        "panels": [],
+    }
+    outputs = [("S", source)]
+    for i in range(rng.randint(0, 2)):
+        primary = rng.choice([s for s in SYSTEMS if abs(SYSTEMS[s].v_ll - src.v_ll) < 0.5])
+        secondary = rng.choice(_LV)
+        p_n, s_n = len(SYSTEMS[primary].phases), len(SYSTEMS[secondary].phases)
+        if (s_n == 3 and p_n < 3) or (p_n == 3 and len(src.phases) < 3):
+            continue
+        data["transformers"].append(
+            {
+                "tag": f"T{i}",
+                "kva": rng.choice([15, 45, 75, 150]),
+                "primary": primary,
+                "secondary": secondary,
+                "fed_from": "S",
+                "loss_pct": rng.choice([0, 2]),
+                "feeder": {"length_ft": rng.choice([0, 50])},
+            }
+        )
+        outputs.append((f"T{i}", secondary))
+    k = 0
+    for parent, system in outputs:
+        for _ in range(rng.randint(1, 2)):
+            tag, sub = f"P{k}", f"P{k + 1}"
+            k += 2
+            subs = [(sub, len(SYSTEMS[system].phases))] if rng.random() < 0.5 else []
+            circuits, spaces = _random_circuits(rng, system, rng.randint(0, 10), subs)
+            feeder = {"length_ft": rng.choice([0, 30, 200])}
+            data["panels"].append(
+                {
+                    "tag": tag,
+                    "system": system,
+                    "fed_from": parent,
+                    "spaces": spaces,
+                    "circuits": circuits,
+                    "feeder": feeder,
+                }
+            )
+            if subs:
+                circuits, spaces = _random_circuits(rng, system, rng.randint(0, 10), [])
+                data["panels"].append({"tag": sub, "system": system, "spaces": spaces, "circuits": circuits})
+    return parse_project(data)
+
+
+@given(seed=st.integers(0, 10**9), edits=st.lists(st.tuples(st.integers(0, 10**6), VA), max_size=4))
+@settings(max_examples=60, deadline=None)
+def test_any_valid_project_computes_and_incremental_matches(seed, edits) -> None:
+    project = _random_project(seed)
+    calc = Calculator(project)
+    json.dumps(calc.result().to_json(), allow_nan=False)
+    for pick, va in edits:
+        rng = random.Random(pick)
+        panel = rng.choice(project.panels)
+        loads = [i for i, c in enumerate(panel.circuits) if c.feeds is None and c.poles > 0]
+        if not loads:
+            continue
+        circuits = list(panel.circuits)
+        i = rng.choice(loads)
+        circuits[i] = replace(circuits[i], va=va)
+        edited = replace(panel, circuits=tuple(circuits))
+        project = replace_panel(project, edited)
+        assert calc.update_panel(edited) == compute_project(project)
+    # Connected VA is conserved at every source whatever the systems and windings.
+    res = calc.result()
+    for s in project.sources:
+        below = sum(res.panels[p.tag].connected_va_total for p in project.panels if p.fed_from == s.tag)
+        below += sum(t.connected_kva * 1000 for t in res.transformers.values() if t.fed_from == s.tag)
+        assert_close(res.sources[s.tag].connected_va, below, rel=1e-9, abs_=1e-6)
