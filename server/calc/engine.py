@@ -692,6 +692,7 @@ class Calculator:
         neutral_amps: float | None,
         harmonic_dominant: bool,
         breaker_amps: int | None,
+        has_neutral: bool | None = None,
     ) -> tuple[FeederResult | None, list[CalcWarning]]:
         info = self.project.project
         try:
@@ -709,6 +710,7 @@ class Calculator:
                 upstream_vd_pct=0.0,
                 vd_total_limit_pct=info.vd_total_pct,
                 code=self.code,
+                has_neutral=has_neutral,
             )
         except SizingError as exc:
             return None, [CalcWarning(WarningCode.NO_SIZE, f"{tag} feeder: {exc}", tag, None, Severity.ERROR)]
@@ -968,6 +970,8 @@ class Calculator:
             neutral_amps=neutral,
             harmonic_dominant=False,
             breaker_amps=node.via.breaker_amps if node.via is not None else None,
+            # A neutral runs to the primary only when primary current returns on it.
+            has_neutral=_primary_neutral(node),
         )
         warnings.extend(fwarn)
         result = TransformerResult(

@@ -439,3 +439,16 @@ def test_single_phase_transformer_whose_primary_string_is_single_phase() -> None
     assert amps["A"] < 1e-9
     assert_close(amps["B"], 20.0)
     assert_close(amps["C"], 20.0)
+
+
+def test_transformer_primary_feeders_carry_a_neutral_only_when_it_returns_current() -> None:
+    def neutral_of(primary: str, secondary: str, poles: int) -> str | None:
+        data = _xf_project({"kva": 45, "primary": primary, "secondary": secondary}, [], feed_poles=poles)
+        feeder = compute_project(loads_project(json.dumps(data))).transformers["X"].feeder
+        assert feeder is not None
+        return feeder.neutral
+
+    assert neutral_of("480 3PH 3W", "208Y/120 3PH 4W", 3) is None  # delta primary
+    assert neutral_of("480Y/277 3PH 4W", "240 3PH 3W", 3) is None  # wye primary, floating star
+    assert neutral_of("480Y/277 3PH 4W", "208Y/120 3PH 4W", 3) is not None  # grounded wye–wye
+    assert neutral_of("480Y/277 3PH 4W", "120/240 1PH 3W", 2) is None  # line to line
