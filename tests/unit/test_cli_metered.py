@@ -6,7 +6,6 @@ kVA = kW / pf (definition of power factor, common practice).
 
 from __future__ import annotations
 
-import ast
 import json
 from datetime import datetime, timedelta
 from pathlib import Path
@@ -149,12 +148,13 @@ def test_sparkline_is_ascii_and_bounded() -> None:
     assert sparkline([3.0, 3.0]) == "@@"
 
 
-def test_metered_is_registered_with_the_cli() -> None:
-    """Read COMMAND_MODULES from server/cli.py without importing every other sub-command."""
-    tree = ast.parse((Path(__file__).resolve().parents[2] / "server" / "cli.py").read_text())
-    modules = next(
-        ast.literal_eval(node.value)
-        for node in ast.walk(tree)
-        if isinstance(node, ast.AnnAssign) and getattr(node.target, "id", "") == "COMMAND_MODULES"
-    )
-    assert "metered" in modules
+def test_metered_runs_through_the_panelwright_entry_point(tmp_path: Path) -> None:
+    from server.cli import COMMAND_MODULES, cli
+
+    assert "metered" in COMMAND_MODULES
+    path = _write(tmp_path, _days(2, peak_index=7))
+    res = CliRunner().invoke(cli, ["metered", str(path), "--json"], prog_name="panelwright")
+    assert res.exit_code == 0, res.stderr
+    assert json.loads(res.stdout)["rows"] == 2 * 96
+    res = CliRunner().invoke(cli, ["metered", str(tmp_path / "none.csv")], prog_name="panelwright")
+    assert res.exit_code == 2 and "none.csv: file not found" in res.stderr
