@@ -452,3 +452,19 @@ def test_transformer_primary_feeders_carry_a_neutral_only_when_it_returns_curren
     assert neutral_of("480Y/277 3PH 4W", "240 3PH 3W", 3) is None  # wye primary, floating star
     assert neutral_of("480Y/277 3PH 4W", "208Y/120 3PH 4W", 3) is not None  # grounded wye–wye
     assert neutral_of("480Y/277 3PH 4W", "120/240 1PH 3W", 2) is None  # line to line
+
+
+def test_main_overload_feeder_ampacity_and_feeder_ocpd_warnings(project) -> None:
+    data = json.loads(DATA.read_text())
+    lp1 = data["panels"][1]
+    lp1["main_amps"] = 100  # design 128.6 A
+    lp1["circuits"][-1]["breaker_amps"] = 50  # feeds LP-2 (design 60.4 A)
+    lp2 = data["panels"][2]
+    lp2["bus_amps"] = 225
+    lp2["feeder"] = {"length_ft": 40, "size": "8"}  # 50 A at 75 °C Cu (NFPA 70-2023 Table 310.16, from memory)
+    res = compute_project(loads_project(json.dumps(data)))
+    assert "main-overload" in _codes(res.panels["LP-1"])
+    codes = _codes(res.panels["LP-2"])
+    assert {"feeder-ampacity", "feeder-ocpd", "conductor-too-small"} <= codes
+    msg = next(w.message for w in res.panels["LP-2"].warnings if w.code == WarningCode.FEEDER_AMPACITY)
+    assert "LP-2" in msg and "60.4" in msg
