@@ -207,3 +207,29 @@ def test_reflection_conserves_power(spec) -> None:
         s_pri = sum(pri.phase_voltage(p) * prim[p].conjugate() for p in "ABC")
     assert_close(abs(s_pri), abs(s_sec), rel=1e-9)
     assert_close(s_pri.real, s_sec.real, rel=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("primary", "secondary"),
+    [("480Y/277 3PH 4W", "240 3PH 3W"), ("480 3PH 3W", "240 3PH 3W"), ("480 3PH 3W", "240/120 3PH 4W")],
+)
+def test_wye_delta_and_delta_delta_balanced_reflection(primary: str, secondary: str) -> None:
+    # Common practice: a balanced load of S draws S/(√3·V_LL) on each side of any three-phase bank.
+    sec, pri = SYSTEMS[secondary], SYSTEMS[primary]
+    prim = reflect_through_transformer(sec, pri, circuit_currents(sec, 1, 3, 60_000.0, 0.9), ("A", "B", "C"))
+    for p in "ABC":
+        assert_close(abs(prim[p]), 60_000.0 / (SQRT3 * pri.v_ll), rel=1e-9, what=f"{primary}–{secondary} {p}")
+    assert abs(sum(prim.values())) < 1e-9
+
+
+def test_wye_delta_unbalanced_line_to_line_load() -> None:
+    # A single 240 V load of I between a and b of a Y–Δ bank (480Y/277 → 240 Δ): the winding a–b carries
+    # 2I/3 and the other two windings I/3 (the floating star forces Σ winding currents = 0), so the
+    # primary lines carry 2I/3n, I/3n, I/3n with n = 277/240.
+    sec, pri = SYSTEMS["240 3PH 3W"], SYSTEMS["480Y/277 3PH 4W"]
+    i_sec = circuit_currents(sec, 1, 2, 2_400.0, 1.0)  # 10 A, lines A and B
+    prim = reflect_through_transformer(sec, pri, i_sec, ("A", "B", "C"))
+    n = 277.0 / 240.0
+    assert sorted(abs(v) for v in prim.values()) == pytest.approx(
+        sorted([10 / 3 / n, 10 / 3 / n, 20 / 3 / n]), rel=1e-9
+    )
