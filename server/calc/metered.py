@@ -479,6 +479,7 @@ class _Columns:
     bad: list[BadRow]
     scale: float = 1.0  # multiplies every value to reach kW or kVA (applied to results only)
     wall_days: list[int] | None = None  # local day ordinal of each reading, when already known
+    wall_days_follow: bool = False  # those days are in order whenever the instants are
 
 
 def _decode(data: bytes, name: str) -> tuple[str, str | None]:
@@ -949,7 +950,14 @@ def _instants(
     passes: dict[datetime, list[int | None]] = {}  # ambiguous wall time -> [first pass, second pass]
     drop: list[int] = []
     values = _row_values(cols)
-    for k in _indices_of(offs, _CHANGES):  # in file order: the first pass comes first
+    changing = _indices_of(offs, _CHANGES)
+    # Between clock changes wall time runs with the instants, so once the instants are in order
+    # the local days are too, except perhaps next to a reading on a change day: check those.
+    last = n - 1
+    follow = all(
+        (k == 0 or ordinals[k - 1] <= ordinals[k]) and (k == last or ordinals[k] <= ordinals[k + 1]) for k in changing
+    )
+    for k in changing:  # in file order: the first pass comes first
         t = times[k]
         o0, o1 = wall_days.offsets(t)
         if o0 == o1:
@@ -982,6 +990,7 @@ def _instants(
         offs = [offs[k] for k in keep]
         ordinals = [ordinals[k] for k in keep]
     cols.wall_days = ordinals
+    cols.wall_days_follow = follow and not drop
     u = list(map(sub, cols.times, offs))
     return u, cols.times, dst_repeats, bad, lambda x, k: x.replace(tzinfo=UTC).astimezone(tz)
 
@@ -1203,7 +1212,7 @@ def _analyze(
         pos,
         d_total,
         to_kva,
-        days_sorted=wall_is_instant and in_order,
+        days_sorted=(wall_is_instant or cols.wall_days_follow) and in_order and isinstance(index, range),
         step=iv if regular and wall_is_instant else None,
         days_known=cols.wall_days if isinstance(index, range) else None,
     )

@@ -529,6 +529,11 @@ def test_a_year_of_local_wall_clock_times_in_zones_with_clock_changes(zone_name:
     assert r.peak_kva == 9999 and r.peak_at == aware[peak_i]
     assert r.peak_at.utcoffset() == aware[peak_i].utcoffset()
     assert r.basis == Basis.ONE_YEAR
+    daily: dict[str, float] = {}
+    for i, t in enumerate(wall):  # local calendar days, by brute force
+        v = 9999 if i == peak_i else i % 5000
+        daily[t.date().isoformat()] = max(daily.get(t.date().isoformat(), -1), v)
+    assert daily_peaks(r) == sorted(daily.items())
 
 
 @pytest.mark.parametrize("zone", [None, "America/Chicago"])
