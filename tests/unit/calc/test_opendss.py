@@ -11,6 +11,10 @@ High-leg 240/120 V delta and 120/240 V split-phase are built from single-phase v
 sources on a common neutral node (A 120∠0°, B 207.8∠−90°, C 120∠180° for the high leg;
 A 120∠0°, B 120∠180° for split-phase), which is exactly the phasor set of server.calc.systems.
 
+Transformers: delta–wye, grounded wye–wye and a centre-tapped single-phase bank across two
+lines (OpenDSS's 3-winding model), each with negligible impedance; the engine's primary line
+currents against OpenDSS's source currents, same 0.5 % tolerance.
+
 Voltage drop: a 3-phase feeder modelled as an OpenDSS Line with NFPA 70 Chapter 9 Table 9
 R and X per 1000 ft (the values the engine uses), feeding a balanced constant-power load.  The
 engine's effective-impedance method (Table 9 Note 2: VD ≈ √3·I·(R cos θ + X sin θ)·L) drops the
@@ -29,7 +33,17 @@ opendss = pytest.importorskip("opendssdirect")
 dss = opendss
 
 from server.calc.engine import compute_project  # noqa: E402
-from server.calc.model import Category, Circuit, Conduit, Material, Panel, Project, ProjectInfo, Source  # noqa: E402
+from server.calc.model import (  # noqa: E402
+    Category,
+    Circuit,
+    Conduit,
+    Material,
+    Panel,
+    Project,
+    ProjectInfo,
+    Source,
+    Transformer,
+)
 from server.calc.systems import SYSTEMS, breaker_phases  # noqa: E402
 from server.calc.voltage_drop import feeder_impedance_ohm, voltage_drop_pct  # noqa: E402
 from tests.helpers import assert_close  # noqa: E402
@@ -187,3 +201,62 @@ def test_three_phase_feeder_voltage_drop_matches_opendss() -> None:
     )
     assert 1.0 < ref_pct < 5.0  # a realistic feeder drop, where the approximation is meant to be used
     assert_close(ours, ref_pct, rel=0.05, what=f"effective-Z voltage drop vs {SOURCE}")
+
+
+# Transformers: ideal banks (0.00001 % R and X, no magnetising current) on the stiff source; the
+# engine's primary line currents against OpenDSS's source terminal currents.
+TRANSFORMERS = {
+    "delta-wye 480–208Y/120": (
+        "480Y/277 3PH 4W",
+        {"primary": "480 3PH 3W", "secondary": "208Y/120 3PH 4W", "kva": 75},
+        "New Transformer.x phases=3 windings=2 buses=[src, sec] conns=[delta, wye] kVs=[{vp}, {vs}] kVAs=[75, 75] "
+        "%Rs=[0.00001, 0.00001] XHL=0.00001 %noloadloss=0 %imag=0",
+        [c(1, 1, 12_000, 1.0), c(3, 2, 5_000, 0.8), c(2, 1, 3_000, 0.9)],
+    ),
+    "wye-wye 480Y/277–208Y/120": (
+        "480Y/277 3PH 4W",
+        {"primary": "480Y/277 3PH 4W", "secondary": "208Y/120 3PH 4W", "kva": 75},
+        "New Transformer.x phases=3 windings=2 buses=[src, sec] conns=[wye, wye] kVs=[{vp}, {vs}] kVAs=[75, 75] "
+        "%Rs=[0.00001, 0.00001] XHL=0.00001 %noloadloss=0 %imag=0",
+        [c(1, 1, 12_000, 1.0), c(3, 2, 5_000, 0.8)],
+    ),
+    "single-phase 480–120/240 on A–B": (
+        "480Y/277 3PH 4W",
+        {"primary": "480 3PH 3W", "secondary": "120/240 1PH 3W", "kva": 50},
+        "New Transformer.x phases=1 windings=3 buses=[src.1.2, sec.1.0, sec.0.2] kVs=[{vp}, 0.12, 0.12] "
+        "kVAs=[50, 25, 25] %Rs=[0.00001, 0.00001, 0.00001] XHL=0.00001 XHT=0.00001 XLT=0.00001 %noloadloss=0 %imag=0",
+        [c(1, 2, 24_000, 1.0), c(4, 1, 2_400, 0.9)],
+    ),
+}
+
+
+@pytest.mark.parametrize("case", list(TRANSFORMERS), ids=lambda name: f"{name} vs {SOURCE}")
+def test_transformer_primary_currents_match_opendss(case: str) -> None:
+    system, xf, bank, circuits = TRANSFORMERS[case]
+    pri, sec = SYSTEMS[system], SYSTEMS[xf["secondary"]]
+    _source(system)
+    _cmd(bank.format(vp=f"{pri.v_ll / 1000:.9f}", vs=f"{sec.v_ll / 1000:.9f}"))
+    for circuit in circuits:
+        phases = breaker_phases(sec, circuit.slot, circuit.poles)
+        nodes = ".".join(str(NODE[p]) for p in phases)
+        kv = (sec.v_ll if circuit.poles == 2 else abs(sec.phase_voltage(phases[0]))) / 1000
+        _cmd(
+            f"New Load.s{circuit.slot} bus1=sec.{nodes} phases=1 kV={kv:.9f} kVA={(circuit.va or 0) / 1000} "
+            f"pf={circuit.effective_pf} model=1"
+        )
+    _cmd(f"Set voltagebases=[{pri.v_ll / 1000:.9f}, {sec.v_ll / 1000:.9f}]", "Calcvoltagebases", "Solve")
+    assert dss.Solution.Converged()
+    terminal = _element_currents("Vsource.source")
+    feeds = 3 if sec.three_phase else 2
+    project = Project(
+        ProjectInfo(name="OpenDSS transformer cross-check (invented)"),
+        sources=(Source("S", system),),
+        transformers=(Transformer("X", kva=xf["kva"], primary=xf["primary"], secondary=xf["secondary"]),),
+        panels=(
+            Panel("D", system, fed_from="S", circuits=(Circuit(slot=1, poles=feeds, feeds="X"),)),
+            Panel("P", xf["secondary"], fed_from="X", circuits=tuple(circuits)),
+        ),
+    )
+    ours = compute_project(project).transformers["X"].primary_line_amps
+    for p in pri.phases:
+        assert_close(ours.get(p, 0.0), abs(terminal[NODE[p] - 1]), rel=0.005, abs_=1e-6, what=f"{case} {p} ({SOURCE})")
