@@ -25,7 +25,12 @@ The dual bound HiGHS proves (``mip_dual_bound``) is returned as the objective bo
 
 from __future__ import annotations
 
+import contextlib
 import math
+import os
+import sys
+import threading
+from collections.abc import Iterator
 
 import numpy as np
 from scipy.optimize import Bounds, LinearConstraint, milp
@@ -43,10 +48,13 @@ def solve(
     time_limit_s: float = 20.0,
     rel_gap: float = 1e-7,
     move_weight: float = 0.0,
+    objective_offset: float = 0.0,
 ) -> PlacementSolution:
     """Solve the placement.  ``cap`` set: keep the objective ≤ cap and minimise moves instead.
 
     Returns the chosen starts per type; an empty ``starts`` when HiGHS found no solution in time.
+    ``objective_offset`` adds a constant to the objective so that HiGHS's relative gap test acts
+    as an absolute tolerance of about ``rel_gap × offset`` near zero (used for the neutral).
     """
     spec_phase = _slot_phase_of(model)
     use_neutral = objective == Objective.NEUTRAL
@@ -79,7 +87,8 @@ def solve(
     if not kinds:
         return PlacementSolution(tuple(() for _ in model.types), None, True)
     z_var = len(kinds)
-    n_var = z_var + 1
+    one_var = z_var + 1  # fixed at 1: carries the objective offset
+    n_var = z_var + 2
 
     rows: list[int] = []
     cols: list[int] = []
@@ -183,6 +192,7 @@ def solve(
     c = np.zeros(n_var)
     if cap is None:
         c[z_var] = 1.0
+        c[one_var] = objective_offset
         for v, _w in kept_entries:
             c[v] = -move_weight
     else:
@@ -190,8 +200,10 @@ def solve(
             c[v] = -1.0
     integrality = np.ones(n_var)
     integrality[z_var] = 0
+    integrality[one_var] = 0
     lower = np.zeros(n_var)
     upper = np.ones(n_var)
+    lower_one = 1.0
     for (ti, _cell), v in u_vars.items():
         upper[v] = float(len(model.types[ti].members))
     for (ti, _cell), v in k_vars.items():
@@ -202,14 +214,16 @@ def solve(
         lower[z_var] = 0.0 if use_neutral else -np.inf
     else:
         upper[z_var] = 0.0
+    lower[one_var] = lower_one
     a_matrix = coo_matrix((vals, (rows, cols)), shape=(len(lo), n_var)).tocsr()
-    res = milp(
-        c,
-        constraints=[LinearConstraint(a_matrix, np.array(lo), np.array(hi))],
-        integrality=integrality,
-        bounds=Bounds(lower, upper),
-        options={"time_limit": max(0.1, time_limit_s), "mip_rel_gap": rel_gap, "disp": False},
-    )
+    with _quiet_stdout():
+        res = milp(
+            c,
+            constraints=[LinearConstraint(a_matrix, np.array(lo), np.array(hi))],
+            integrality=integrality,
+            bounds=Bounds(lower, upper),
+            options={"time_limit": max(0.1, time_limit_s), "mip_rel_gap": rel_gap, "disp": False},
+        )
     if res.x is None:
         return PlacementSolution((), None, False)
     starts = _realise_starts(model, kinds, res.x, spec_phase)
@@ -219,8 +233,38 @@ def solve(
     dual = None
     if cap is None and bound is not None and math.isfinite(bound):
         # HiGHS proves the bound to its feasibility tolerance; give a hair back so it stays a bound
-        dual = float(bound) - 1e-6 * max(1.0, abs(float(bound)))
+        dual = float(bound) - objective_offset
+        dual -= 1e-7 * max(1.0, abs(dual))
     return PlacementSolution(starts, dual, res.status == 0)
+
+
+_STDOUT_LOCK = threading.Lock()
+
+
+@contextlib.contextmanager
+def _quiet_stdout() -> Iterator[None]:
+    """Silence file descriptor 1 while HiGHS runs.
+
+    HiGHS 1.12 prints some diagnostics from C++ straight to stdout even with output off; that
+    would corrupt ``panelwright balance --json``.  Python-level output is flushed first.
+    """
+    with _STDOUT_LOCK:
+        try:
+            sys.stdout.flush()
+            saved = os.dup(1)
+        except (OSError, ValueError, AttributeError):
+            yield
+            return
+        try:
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            try:
+                os.dup2(devnull, 1)
+            finally:
+                os.close(devnull)
+            yield
+        finally:
+            os.dup2(saved, 1)
+            os.close(saved)
 
 
 def _slot_phase_of(model: PlacementModel) -> dict[int, int]:
