@@ -289,6 +289,7 @@ class _Node:
         "final",
         "final_key",
         "final_by_severity",
+        "final_warnings",
     )
 
     def __init__(self, kind: str, element: Source | Transformer | Panel, spec: SystemSpec) -> None:
@@ -316,6 +317,7 @@ class _Node:
         self.final: object | None = None
         self.final_key: tuple | None = None
         self.final_by_severity: tuple[tuple[CalcWarning, ...], ...] = ()
+        self.final_warnings: tuple[CalcWarning, ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -560,6 +562,8 @@ class Calculator:
             missing = sorted(set(self.nodes) - {n.tag for n in self.order})
             raise ProjectFileError([Problem("is not connected to any source (feed loop?)", t) for t in missing])
         self.by_tag = sorted(self.order, key=lambda n: n.tag)
+        self._warnings_dirty = True
+        self._all_warnings: tuple[CalcWarning, ...] = ()
         for n in self.order:
             if n.kind == "transformer":
                 self._wire_transformer(n)
@@ -1048,6 +1052,7 @@ class Calculator:
                 node.final = local.result
                 node.final_key = (local,)
                 node.final_by_severity = ()
+                node.final_warnings = ()
                 continue
             if prev is not None and prev[0] is local and not parent.bus_changed:
                 node.bus_changed = False
@@ -1106,7 +1111,12 @@ class Calculator:
             else:
                 warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
                 node.final = _evolve(local.result, feeder=new_feeder, secondary_fault_ka=fault_ka, warnings=warnings)
-            node.final_by_severity = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
+            if warnings is not node.final_warnings:
+                node.final_warnings = warnings
+                groups = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
+                if groups != node.final_by_severity:
+                    node.final_by_severity = groups
+                    self._warnings_dirty = True
 
     def _feeder_z(self, feeder: FeederResult | None) -> complex:
         if feeder is None or feeder.length_ft <= 0:
@@ -1150,21 +1160,25 @@ class Calculator:
         for s in self.project.sources:
             sources[s.tag] = nodes[s.tag].final  # type: ignore[assignment]
         # Every node's warnings carry its own tag and are already sorted, so the project list
-        # (severity, then tag, slot, code) is a concatenation in (severity, tag) order.
-        warnings: list[CalcWarning] = []
-        by_tag = self.by_tag
-        for rank in range(len(_SEVERITY_ORDER)):
-            for node in by_tag:
-                groups = node.final_by_severity
-                if groups and groups[rank]:
-                    warnings.extend(groups[rank])
+        # (severity, then tag, slot, code) is a concatenation in (severity, tag) order; it is
+        # rebuilt only when some node's warnings changed.
+        if self._warnings_dirty:
+            warnings: list[CalcWarning] = []
+            by_tag = self.by_tag
+            for rank in range(len(_SEVERITY_ORDER)):
+                for node in by_tag:
+                    groups = node.final_by_severity
+                    if groups and groups[rank]:
+                        warnings.extend(groups[rank])
+            self._all_warnings = tuple(warnings)
+            self._warnings_dirty = False
         self._result = ProjectResult(
             code=self.code.value,
             include_future=self.include_future,
             panels=panels,
             transformers=transformers,
             sources=sources,
-            warnings=tuple(warnings),
+            warnings=self._all_warnings,
         )
 
     # ---- public API
