@@ -1045,11 +1045,13 @@ def _analyze(
 ) -> MeteredResult:
     bad = list(cols.bad)
     placed: list[str] = []
-    u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, placed, check_mixed=False)
+    first_bad: list[BadRow] = []
     try:
+        u, w, dst_repeats, first_bad, to_dt = _instants(cols, tz, placed, check_mixed=False)
         deltas = list(map(sub, islice(u, 1, None), u))
+        more_bad: list[BadRow] = first_bad
     except TypeError:  # naive and offset timestamps mixed: sort them out, then place again
-        bad += more_bad
+        bad += first_bad
         placed = []
         u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, placed)
         deltas = list(map(sub, islice(u, 1, None), u))

@@ -574,3 +574,11 @@ def test_uploaded_bytes_with_bom_and_latin1() -> None:
     assert r.peak_kva == 7 and "read as Latin-1" in r.notes[0]
     with pytest.raises(MeteredDataError, match="upload.csv: the file is empty"):
         analyze_csv(b"", name="upload.csv")
+
+
+def test_offset_timestamp_on_a_clock_change_day_among_naive_ones() -> None:
+    rows = [f"2023-11-05 0{h}:00,{10 + h}" for h in range(6)]
+    rows[1] = "2023-11-05T01:00:00-05:00,50"  # line 3, inside the repeated hour
+    r = analyze_csv(_csv("timestamp,kVA", rows), tz="America/Chicago")
+    assert [b.line for b in r.bad_rows] == [3]
+    assert r.rows == 5 and r.peak_kva == 15
