@@ -57,6 +57,7 @@ def history_for(
     current: RevisionInfo | None,
     previous: Project | None = None,
     previous_revision: RevisionInfo | None = None,
+    previous_result: ProjectResult | None = None,
 ) -> IssueHistory:
     """History of a set issued from a project file, optionally against the previous issued file.
 
@@ -68,7 +69,7 @@ def history_for(
     if previous is None:
         return IssueHistory(current=current, first_issue=True)
     number = current.number if current is not None else None
-    deltas = revision_deltas(previous, project, revision=number, current_result=result)
+    deltas = revision_deltas(previous, project, revision=number, previous_result=previous_result, current_result=result)
     prev = previous_revision or RevisionInfo(
         number=(number - 1) if number is not None else 0, date="", description="previous issue"
     )

@@ -550,13 +550,48 @@ def service_of(project: Project) -> dict[str, str]:
 
 
 def _plans(project: Project, result: ProjectResult, deltas: Deltas) -> list[_Plan]:
-    """The sheets after the index, in order: per service its load calculation and transformer
-    schedule, then every panel, then the warnings per service in parts."""
+    """The sheets after the index, in order, grouped by service (so one edit touches one
+    stretch of the set and of its index): the load calculation, the transformer schedule,
+    the panels, then that service's warnings in parts."""
     service = service_of(project)
+    panels_of: dict[str, list[Panel]] = {}
+    for p in project.panels:
+        if p.tag in result.panels:
+            panels_of.setdefault(service.get(p.tag, ""), []).append(p)
+    wchanged = _changed_keys(deltas, WARNINGS_KEY)
+    warnings_of: dict[str, list[CalcWarning]] = {}
+    for w in all_warnings(result):
+        warnings_of.setdefault(service.get(w.tag, ""), []).append(w)
+
+    def panel_plan(p: Panel) -> _Plan:
+        return _Plan(p.tag, f"Panel schedule — {p.tag}", "panel", frozenset({p.tag}), deltas.touches(p.tag))
+
+    def warning_plans(svc: str) -> list[_Plan]:
+        ws = warnings_of.get(svc) or []
+        parts = [ws[k : k + WARNINGS_PER_SHEET] for k in range(0, len(ws), WARNINGS_PER_SHEET)]
+        label = f"service {svc}" if svc else "not under a service"
+        out = []
+        for n, part in enumerate(parts, start=1):
+            rows = tuple(WarningRow(w, _warning_key(w) in wchanged) for w in part)
+            suffix = f" ({n} of {len(parts)})" if len(parts) > 1 else ""
+            out.append(
+                _Plan(
+                    f"*warnings*:{svc}:{n}",
+                    f"Calculation warnings — {label}{suffix}",
+                    "warnings",
+                    frozenset({"warnings"}),
+                    any(r.changed for r in rows),
+                    (label, n, len(parts), rows),
+                )
+            )
+        return out
+
     plans: list[_Plan] = []
+    served = set()
     for s in project.sources:
         if s.tag not in result.sources:
             continue
+        served.add(s.tag)
         plans.append(
             _Plan(
                 s.tag,
@@ -578,38 +613,41 @@ def _plans(project: Project, result: ProjectResult, deltas: Deltas) -> list[_Pla
                     (s.tag, txs),
                 )
             )
-    for p in project.panels:
-        if p.tag in result.panels:
-            plans.append(_Plan(p.tag, f"Panel schedule — {p.tag}", "panel", frozenset({p.tag}), deltas.touches(p.tag)))
-    warnings = all_warnings(result)
-    wchanged = _changed_keys(deltas, WARNINGS_KEY)
-    by_service: dict[str, list[CalcWarning]] = {}
-    for w in warnings:
-        by_service.setdefault(service.get(w.tag, "—"), []).append(w)
-    for svc in [s.tag for s in project.sources] + sorted(set(by_service) - {s.tag for s in project.sources}):
-        ws = by_service.get(svc)
-        if not ws:
-            continue
-        parts = [ws[k : k + WARNINGS_PER_SHEET] for k in range(0, len(ws), WARNINGS_PER_SHEET)]
-        for n, part in enumerate(parts, start=1):
-            rows = tuple(WarningRow(w, _warning_key(w) in wchanged) for w in part)
-            suffix = f" ({n} of {len(parts)})" if len(parts) > 1 else ""
-            plans.append(
-                _Plan(
-                    f"*warnings*:{svc}:{n}",
-                    f"Calculation warnings — service {svc}{suffix}",
-                    "warnings",
-                    frozenset({"warnings"}),
-                    any(r.changed for r in rows),
-                    (svc, n, len(parts), rows),
-                )
-            )
+        plans.extend(panel_plan(p) for p in panels_of.get(s.tag, []))
+        plans.extend(warning_plans(s.tag))
+    for svc in sorted(set(panels_of) - served):
+        plans.extend(panel_plan(p) for p in panels_of[svc])
+    for svc in sorted(set(warnings_of) - served):
+        plans.extend(warning_plans(svc))
     return plans
 
 
+def _index_layout(paper: Paper, n_plans: int) -> list[tuple[int, int]]:
+    """(start, count) of the plan entries listed on each index sheet.
+
+    The cover lists itself and the first entries in one column; each continuation sheet
+    lists two columns.  Entries keep their place, so an edit re-renders only the index
+    sheets that list a sheet whose revision changed (and the cover, which lists the set's
+    revisions).
+    """
+    per_col = _index_capacity(paper)
+    out = [(0, per_col - 2)]
+    start = per_col - 2
+    while start < n_plans:
+        out.append((start, 2 * per_col))
+        start += 2 * per_col
+    return out
+
+
 def touched_sheets(project: Project, result: ProjectResult, deltas: Deltas) -> frozenset[str]:
-    """Keys of the sheets a revision changed (the index always is)."""
-    return frozenset({"*index*:1"} | {p.key for p in _plans(project, result, deltas) if p.touched})
+    """Keys of the sheets a revision changed: the cover always, continuation index sheets
+    that list a changed sheet, and every sheet whose content changed."""
+    plans = _plans(project, result, deltas)
+    keys = {"*index*:1"} | {p.key for p in plans if p.touched}
+    for k, (start, count) in enumerate(_index_layout(PAPERS[project.project.paper], len(plans))[1:], start=2):
+        if any(p.touched for p in plans[start : start + count]):
+            keys.add(f"*index*:{k}")
+    return frozenset(keys)
 
 
 def _index_capacity(paper: Paper) -> int:
@@ -639,10 +677,8 @@ def build_sheets(
 
     # The index: the cover holds one column of entries; each continuation sheet two.
     per_col = _index_capacity(paper)
-    total = 1 + len(plans)
-    n_index = 1
-    while per_col + 2 * per_col * (n_index - 1) < total + (n_index - 1):
-        n_index += 1
+    layout = _index_layout(paper, len(plans))
+    n_index = len(layout)
     index_keys = [f"*index*:{k}" for k in range(1, n_index + 1)]
     numbers: dict[str, str] = {}
     for k, key in enumerate(index_keys):
@@ -714,26 +750,38 @@ def build_sheets(
             SheetSpec(plan.key, numbers[plan.key], plan.title, f"pdf/{plan.kind}.html", ctx, aliases, plan.touched)
         )
 
-    entries: list[IndexEntry] = []
-    index_titles = ["Cover and sheet index"] + [f"Sheet index, continued ({k})" for k in range(2, n_index + 1)]
-    index_tbs = [title(key, t, True) for key, t in zip(index_keys, index_titles, strict=True)]
-    for key, t, tb in zip(index_keys, index_titles, index_tbs, strict=True):
-        entries.append(IndexEntry(numbers[key], t, str(tb.revision.number) if tb.revision else "—"))
-    for spec in specs:
-        rev = spec.context.title.revision
-        entries.append(IndexEntry(spec.number, spec.title, str(rev.number) if rev else "—"))
+    entries = [
+        IndexEntry(
+            spec.number, spec.title, str(spec.context.title.revision.number) if spec.context.title.revision else "—"
+        )
+        for spec in specs
+    ]
     index_specs = []
-    start = 0
-    for k, (key, t, tb) in enumerate(zip(index_keys, index_titles, index_tbs, strict=True)):
-        n_cols = 1 if k == 0 else 2
-        chunk = tuple(entries[start : start + n_cols * per_col])
-        start += len(chunk)
-        cols = tuple(chunk[c * per_col : (c + 1) * per_col] for c in range(n_cols) if chunk[c * per_col :])
+    for k, (key, (start, count)) in enumerate(zip(index_keys, layout, strict=True)):
+        listed = specs[start : start + count]
+        if k == 0:
+            t = "Cover and sheet index"
+            touched = True
+            tb = title(key, t, touched)
+            own = IndexEntry(numbers[key], t, str(tb.revision.number) if tb.revision else "—")
+            more = (
+                [IndexEntry(f"{numbers[index_keys[1]]}…{numbers[index_keys[-1]]}", "Sheet index, continued", "")]
+                if n_index > 1
+                else []
+            )
+            chunk = (own, *more, *entries[start : start + count])
+            cols = (chunk,)
+        else:
+            t = f"Sheet index, continued ({k + 1} of {n_index})"
+            touched = any(sp.touched for sp in listed)
+            tb = title(key, t, touched)
+            chunk = tuple(entries[start : start + count])
+            cols = tuple(chunk[c * per_col : (c + 1) * per_col] for c in range(2) if chunk[c * per_col :])
         cover = CoverSheet(
             tb, project, chunk, cols, k > 0, history.all(), result.include_future, str(info.code), CAUTION, basis, drev
         )
         aliases = frozenset({numbers[key], "index"} | ({"cover"} if k == 0 else set()))
-        index_specs.append(SheetSpec(key, numbers[key], t, "pdf/index.html", cover, aliases, True))
+        index_specs.append(SheetSpec(key, numbers[key], t, "pdf/index.html", cover, aliases, touched))
     every = [*index_specs, *specs]
     if select is None:
         return every

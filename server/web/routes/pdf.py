@@ -1,0 +1,119 @@
+"""PDF set buttons: start a background render, poll its progress (htmx, every 500 ms), download.
+
+``POST /projects/{pid}/pdf`` (optional ``sheets``: a panel tag for the panel's own sheet)
+queues a job and answers with the progress fragment (htmx) or redirects to the job page.
+``GET …/pdf/jobs/{id}`` is the page, or with htmx the fragment; ``…/download`` sends the PDF.
+The set itself comes from :mod:`server.pdf` (the same result objects as every screen).
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from dataclasses import dataclass
+
+from fastapi import APIRouter, Form, Request
+from fastapi.responses import FileResponse, RedirectResponse, Response
+
+from server.pdf.jobs import Job, JobRegistry
+from server.pdf.render import default_cache_dir
+from server.services import NotFound
+from server.web.deps import HtmxDep, ServicesDep, TemplatesDep
+from server.web.views import Page, page
+
+router = APIRouter(tags=["pdf"])
+BASE = "/projects/{pid}/pdf"
+
+
+@dataclass(frozen=True)
+class PdfJobContext:
+    """A PDF job: its progress, the download link when done, the message when it failed."""
+
+    page: Page
+    job: Job
+    status_url: str
+    download_url: str
+
+
+def registry(request: Request) -> JobRegistry:
+    """The app's job registry, made on first use (cache: PANELWRIGHT_PDF_CACHE_DIR or ./var/pdf-cache)."""
+    reg = getattr(request.app.state, "pdf_jobs", None)
+    if reg is None:
+        cache = default_cache_dir()
+        reg = JobRegistry(cache / "sets", cache)
+        request.app.state.pdf_jobs = reg
+    return reg
+
+
+def _job(request: Request, pid: int, job_id: str) -> Job:
+    job = registry(request).get(job_id)
+    if job is None or job.project_id != pid:
+        raise NotFound(f"no PDF job {job_id} for project {pid} (jobs are kept while the server runs)")
+    return job
+
+
+def _context(request: Request, snap, job: Job) -> PdfJobContext:
+    base = f"/projects/{snap.project_id}/pdf/jobs/{job.id}"
+    return PdfJobContext(page(snap, "PDF set", "pdf"), job, base, base + "/download")
+
+
+@dataclass(frozen=True)
+class PdfPageContext:
+    """The PDF page: a button for the whole set and one per panel."""
+
+    page: Page
+    panels: list[str]
+    revision: str  # what the set prints: "revision N" or "draft (not issued)"
+
+
+@router.get(BASE, name="pdf_page")
+def pdf_page(request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep) -> Response:
+    snap = svc.snapshot(pid)
+    from server.pdf.stored import stored_set
+
+    history = stored_set(svc, pid).history
+    revision = f"revision {history.current.number}" if history.current else "a draft (changed since the last issue)"
+    ctx = PdfPageContext(page(snap, "PDF set", "pdf"), [p.tag for p in snap.model.panels], revision)
+    return templates.TemplateResponse(request, "pdfjobs/index.html", {"ctx": ctx, "page": ctx.page})
+
+
+@router.post(BASE, name="pdf_start")
+def start(
+    request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep, htmx: HtmxDep, sheets: str = Form("")
+) -> Response:
+    snap = svc.snapshot(pid)
+    names = [s.strip() for s in sheets.split(",") if s.strip()] or None
+    known = (
+        {p.tag for p in snap.model.panels}
+        | {t.tag for t in snap.model.transformers}
+        | {s.tag for s in snap.model.sources}
+    )
+    for n in names or []:
+        if n not in known and not re.fullmatch(r"PW-\d{3}(\.\d+)?|index|cover|warnings|transformers", n):
+            raise NotFound(f"no sheet named {n} in project {snap.info.number or pid}")
+    stem = re.sub(
+        r"[^A-Za-z0-9._-]+", "-", f"{snap.info.number or pid}-{names[0] if names and len(names) == 1 else 'set'}"
+    )
+    job = registry(request).submit(svc, pid, names, f"{stem}.pdf")
+    if not htmx:
+        return RedirectResponse(f"/projects/{pid}/pdf/jobs/{job.id}", status_code=303)
+    ctx = _context(request, snap, job)
+    return templates.TemplateResponse(request, "pdfjobs/_job.html", {"ctx": ctx, "page": ctx.page})
+
+
+@router.get(BASE + "/jobs/{job_id}", name="pdf_job")
+def status(
+    request: Request, pid: int, job_id: str, svc: ServicesDep, templates: TemplatesDep, htmx: HtmxDep
+) -> Response:
+    snap = svc.snapshot(pid)
+    ctx = _context(request, snap, _job(request, pid, job_id))
+    name = "pdfjobs/_job.html" if htmx else "pdfjobs/job.html"
+    return templates.TemplateResponse(request, name, {"ctx": ctx, "page": ctx.page})
+
+
+@router.get(BASE + "/jobs/{job_id}/download", name="pdf_download")
+def download(request: Request, pid: int, job_id: str) -> Response:
+    job = _job(request, pid, job_id)
+    if job.state != "done" or job.path is None or not os.path.exists(job.path):
+        raise NotFound(f"the PDF of job {job_id} is not ready")
+    return FileResponse(job.path, media_type="application/pdf", filename=job.filename)
