@@ -198,6 +198,7 @@ def parse_slot(value: CellValue) -> tuple[int, int | None] | str:
     )
 
 
+@functools.lru_cache(maxsize=1024, typed=True)
 def parse_breaker(value: CellValue) -> tuple[int | None, int | None] | str:
     """(trip amps, poles) from 20, "20A", "20/1", "20A/2P", "2P-30A"; or an error message."""
     if isinstance(value, bool):
@@ -237,6 +238,7 @@ def parse_breaker(value: CellValue) -> tuple[int | None, int | None] | str:
     return (int(amps) if amps is not None else None), (int(poles) if poles is not None else None)
 
 
+@functools.lru_cache(maxsize=1024, typed=True)
 def parse_poles(value: CellValue) -> int | str:
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         if value == int(value) and 0 <= value <= 3:
@@ -248,6 +250,7 @@ def parse_poles(value: CellValue) -> int | str:
     return f"{str(value)!r} is not a number of poles (0 for a space, 1, 2 or 3)"
 
 
+@functools.lru_cache(maxsize=1024, typed=True)
 def parse_phases(value: CellValue) -> tuple[str, ...] | None:
     letters = re.sub(r"[^ABC]", "", _text(value).upper())
     if not letters or re.search(r"[^ABC\s,/\-Ø&+]", _text(value).upper().replace("PH", "")):
@@ -489,6 +492,7 @@ def _sheet_rows(
         formulas_by_row.setdefault(r, set()).add(c)
     ended: str = ""
     out: list[PreviewRow] = []
+    panels = {p.tag: p for p in project.panels}
     for r in range(cmap.header_row + 1, len(grid.rows)):
         values = grid.rows[r]
 
@@ -524,7 +528,7 @@ def _sheet_rows(
             tag = _text(values[panel_col]) if panel_col < len(values) else ""
             if not tag:
                 w.problems.append(CellProblem("no panel tag", panel_col, "panel"))
-            elif project.panel(tag) is None:
+            elif tag not in panels:
                 w.problems.append(CellProblem(f"panel {tag!r} is not in this project", panel_col, "panel"))
                 tag = None
         if "slot" not in w.raw:
@@ -545,7 +549,7 @@ def _sheet_rows(
         # messy sheets without a category column: a breaker described "spare" is a spare
         if word in ("spare", "spr") and cmap.column(Role.CATEGORY) is None:
             w.raw["category"] = Category.SPARE.value
-        panel = project.panel(tag) if tag else None
+        panel = panels.get(tag) if tag else None
         spec = SYSTEMS.get(panel.system) if panel else None
         poles_for_load = int(w.raw.get("poles", 1) or 1)
         if w.load is not None:
