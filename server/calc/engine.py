@@ -1189,9 +1189,10 @@ class Calculator:
     def update_panel(self, panel: Panel) -> ProjectResult:
         """Replace one panel (same tag) and recompute incrementally; identical to a full compute.
 
-        The panel is checked first (:func:`server.calc.projectfile.check_panel`); a change in
-        what it feeds, its system or its status of feeding breakers changes the tree, and then
-        the whole project is rebuilt (after the topology check).
+        The panel is checked first (:func:`server.calc.projectfile.check_panel`).  A change of
+        the tree (what the panel feeds, the poles or status of a feeding breaker, its system or
+        ``fed_from``) rebuilds the whole project after the topology check; anything else
+        recomputes the panel, its ancestors and the top-down pass only.
         """
         node = self.nodes.get(panel.tag)
         if node is None or node.kind != "panel":
