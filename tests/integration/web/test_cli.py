@@ -58,3 +58,12 @@ def test_user_errors_exit_2_with_a_message(run, tmp_path):
 def test_db_check(run):
     result = run("db", "check")
     assert result.exit_code == 0 and "current" in result.output
+
+
+def test_serve_refuses_an_unmigrated_database(tmp_path, monkeypatch):
+    from server.commands import serve
+
+    monkeypatch.setenv("PANELWRIGHT_DATABASE_URL", f"sqlite:///{tmp_path / 'fresh.db'}")
+    result = CliRunner().invoke(serve.command, [])
+    assert result.exit_code == 2
+    assert "panelwright db upgrade" in result.output

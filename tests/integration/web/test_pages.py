@@ -136,3 +136,15 @@ def test_element_links_redirect_to_the_right_page(client, demo_id):
         .headers["location"]
         .endswith("/transformers/T-1")
     )
+
+
+def test_an_unexpected_failure_shows_an_apology_not_a_traceback(client, app, demo_id, monkeypatch, caplog):
+    def broken(_pid):
+        raise RuntimeError("simulated fault deep in the stack")
+
+    monkeypatch.setattr(app.state.services, "snapshot", broken)
+    r = client.get(f"/projects/{demo_id}/tree")
+    assert r.status_code == 500
+    assert "Traceback" not in r.text and "simulated fault" not in r.text
+    assert "nothing was half-saved" in parse(r.text).find("p", class_="error-message").text
+    assert any("simulated fault" in (rec.exc_text or str(rec.exc_info)) for rec in caplog.records)  # logged
