@@ -56,6 +56,35 @@ class Conflict(ServiceError):
     """Someone else changed the project between reading and writing, several times running."""
 
 
+class StaleEdit(Conflict):
+    """The edit was based on an older version of the row than the one stored now; nothing was written.
+
+    Carries what is stored now (``current``, its ``version`` and who changed it last) and what
+    the user typed (``typed``), so the editor can show both and let the user choose.
+    """
+
+    def __init__(
+        self, target: str, current: dict[str, Any], version: int, changed_by: str, typed: Mapping[str, Any]
+    ) -> None:
+        self.target, self.current, self.version, self.changed_by = target, current, version, changed_by
+        self.typed = dict(typed)
+        super().__init__(
+            f"{target} was changed by {changed_by} while you were editing; nothing was saved. "
+            "Reload to see their values, then make your change again."
+        )
+
+    @classmethod
+    def of(cls, s: Session, project_id: int, tag: str, row: db.Circuit, typed: Mapping[str, Any]) -> StaleEdit:
+        target = f"{tag} circuit {row.slot}"
+        who = s.scalar(
+            select(db.AuditEvent.user_name)
+            .where(db.AuditEvent.project_id == project_id, db.AuditEvent.target == target)
+            .order_by(db.AuditEvent.id.desc())
+            .limit(1)
+        )
+        return cls(f"Circuit {row.slot} of {tag}", circuit_dict(row), row.version, who or "someone else", typed)
+
+
 class EditRejected(ServiceError):
     """The edit breaks a rule of the project file; nothing was written."""
 
@@ -212,6 +241,7 @@ class _Entry:
     model: Project
     calculator: Calculator
     result: ProjectResult
+    versions: dict[str, dict[int, int]] = field(default_factory=dict)  # panel tag → slot → Circuit.version
 
 
 class CalcCache:
@@ -256,6 +286,8 @@ class Snapshot:
     archived: bool
     model: Project
     result: ProjectResult
+    #: panel tag → slot → ``Circuit.version``: the editor sends it back so a stale edit is refused.
+    circuit_versions: Mapping[str, Mapping[int, int]] = field(default_factory=dict)
 
     @property
     def info(self) -> ProjectInfo:
@@ -374,7 +406,7 @@ class Services:
             entry = self.cache.get(project_id, version)
             if entry is None:
                 entry = self._rebuild(s, project_id)
-            return Snapshot(project_id, entry.data_version, archived, entry.model, entry.result)
+            return Snapshot(project_id, entry.data_version, archived, entry.model, entry.result, entry.versions)
 
     def _rebuild(self, s: Session, project_id: int) -> _Entry:
         for _ in range(5):
@@ -383,6 +415,7 @@ class Services:
                 raise NotFound(f"project {project_id} does not exist")
             version = row.data_version
             data = project_file(row)
+            versions = {p.tag: {c.slot: c.version for c in p.circuits} for p in row.panels}
             metered = metered_repo.active_overrides_va(s, project_id=project_id)  # NEC 220.87 existing loads
             # Someone may have written between the queries: only a stable version is cached.
             if repo.data_version(s, project_id=project_id) == version:
@@ -390,7 +423,7 @@ class Services:
             s.expire_all()
         model = pf.parse_project(data, source=f"project {project_id} in the database")
         calculator = Calculator(model, existing_load_override_va=metered)
-        entry = _Entry(version, model, calculator, calculator.result())
+        entry = _Entry(version, model, calculator, calculator.result(), versions)
         self.cache.put(project_id, entry)
         return entry
 
@@ -497,9 +530,20 @@ class Services:
     # ----------------------------------------------------------------- circuit edits (incremental)
 
     def edit_circuit(
-        self, project_id: int, tag: str, slot: int, form: Mapping[str, Any], *, create: bool = False
+        self,
+        project_id: int,
+        tag: str,
+        slot: int,
+        form: Mapping[str, Any],
+        *,
+        create: bool = False,
+        expected_version: int | None = None,
     ) -> Snapshot:
-        """Change (or, with ``create``, add) the circuit at ``slot`` of panel ``tag``; one transaction."""
+        """Change (or, with ``create``, add) the circuit at ``slot`` of panel ``tag``; one transaction.
+
+        With ``expected_version`` (the ``Circuit.version`` the editor showed), an edit of a circuit
+        someone else changed since is refused with :class:`StaleEdit` and nothing is written.
+        """
         values = {k: v for k, v in blank_to_none(form).items() if k in CIRCUIT_FORM_FIELDS}
         if "continuous" in form and values.get("continuous") is None:
             values["continuous"] = None
@@ -520,7 +564,7 @@ class Services:
                 raise EditRejected(problems, form)
             return circuit
 
-        return self._edit_panel_circuits(project_id, tag, slot, change, form)
+        return self._edit_panel_circuits(project_id, tag, slot, change, form, expected_version)
 
     def delete_circuit(self, project_id: int, tag: str, slot: int) -> Snapshot:
         def change(panel: Panel) -> Circuit | None:
@@ -549,6 +593,7 @@ class Services:
         slot: int,
         change: Callable[[Panel], Circuit | None],
         form: Mapping[str, Any],
+        expected_version: int | None = None,
     ) -> Snapshot:
         with self._locks.of(project_id):
             for _ in range(3):
@@ -577,6 +622,9 @@ class Services:
                     if panel_id is None:
                         raise NotFound(f"project {project_id} has no panel {tag}")
                     row = repo.get_circuit(s, panel_id=panel_id, slot=slot)
+                    if expected_version is not None and row is not None and row.version != expected_version:
+                        raise StaleEdit.of(s, project_id, tag, row, form)  # rolls the transaction back
+                    new_version: int | None = None
                     if circuit is None:
                         if row is not None:
                             s.delete(row)
@@ -585,10 +633,14 @@ class Services:
                             row = db.Circuit(panel_id=panel_id, slot=slot, version=1)
                             s.add(row)
                         _apply_circuit(row, circuit)
-                return self._advance(snap, new_model, new_panel)
+                        s.flush()
+                        new_version = row.version
+                return self._advance(snap, new_model, new_panel, slot, new_version)
         raise Conflict("the project kept changing while this edit was saved; reload and try again")
 
-    def _advance(self, snap: Snapshot, new_model: Project, new_panel: Panel) -> Snapshot:
+    def _advance(
+        self, snap: Snapshot, new_model: Project, new_panel: Panel, slot: int, new_version: int | None
+    ) -> Snapshot:
         """Bring the cached calculator to the new version with an incremental recompute."""
         entry = self.cache.get(snap.project_id, snap.data_version)
         if entry is None:
@@ -598,7 +650,11 @@ class Services:
             entry.result = entry.calculator.update_panel(new_panel)
             entry.model = new_model
             entry.data_version = snap.data_version + 1
-        return Snapshot(snap.project_id, entry.data_version, snap.archived, entry.model, entry.result)
+            panel_versions = {k: v for k, v in entry.versions.get(new_panel.tag, {}).items() if k != slot}
+            if new_version is not None:
+                panel_versions[slot] = new_version
+            entry.versions = {**entry.versions, new_panel.tag: panel_versions}  # copied: older snapshots keep theirs
+        return Snapshot(snap.project_id, entry.data_version, snap.archived, entry.model, entry.result, entry.versions)
 
     # ----------------------------------------------------------------- element edits
 

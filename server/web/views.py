@@ -7,6 +7,7 @@ of a riser diagram, the worst warning of a node).
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -327,6 +328,7 @@ class PanelContext:
     header_values: dict[str, str]
     header_errors: dict[str, str]
     row_error: str = ""  # a rejected circuit edit's message not tied to one field
+    versions: Mapping[int, int] = field(default_factory=dict)  # slot → Circuit.version, sent back with each edit
     choices: Choices = CHOICES
 
     @property
@@ -376,6 +378,7 @@ def panel_context(
         header_values=hv,
         header_errors=header_errors or {},
         row_error=row_error,
+        versions=snap.circuit_versions.get(tag, {}),
     )
 
 

@@ -11,7 +11,8 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import RedirectResponse, Response
 
-from server.services import CIRCUIT_FORM_FIELDS, EditRejected, Snapshot
+from server.services import CIRCUIT_FORM_FIELDS, EditRejected, Snapshot, StaleEdit
+from server.web.conflicts import conflict_response, expected_version
 from server.web.deps import FormDep, HtmxDep, ServicesDep, TemplatesDep
 from server.web.views import PanelContext, SideCell, panel_context
 
@@ -79,9 +80,11 @@ def update_circuit(
 ) -> Response:
     trigger = request.headers.get("HX-Trigger-Name")
     try:
-        snap = svc.edit_circuit(pid, tag, slot, form)
+        snap = svc.edit_circuit(pid, tag, slot, form, expected_version=expected_version(form))
     except EditRejected as exc:
         return _rejected(request, svc, templates, htmx, pid, tag, slot, form, exc, trigger)
+    except StaleEdit as exc:  # someone saved this circuit since the page was drawn: 409, nothing lost
+        return conflict_response(request, svc, templates, htmx, pid, tag, slot, exc, trigger)
     if not htmx:
         return _back_to_slot(request, pid, tag, slot)
     structural = trigger is None or trigger == "poles"
