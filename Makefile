@@ -22,7 +22,7 @@ system-deps:
 run: system-deps install
 	$(VENV)/bin/panelwright db upgrade
 	$(VENV)/bin/panelwright demo
-	$(VENV)/bin/panelwright serve
+	$(VENV)/bin/panelwright serve --single-user
 
 lint: install
 	$(VENV)/bin/ruff check .

@@ -16,7 +16,20 @@ import click
 from server import __version__
 
 #: Sub-command modules, in the order ``--help`` lists them.
-COMMAND_MODULES: tuple[str, ...] = ("calc", "schema", "sheets", "pdf", "serve", "db", "demo", "importfile", "export", "metered")
+COMMAND_MODULES: tuple[str, ...] = (
+    "calc",
+    "schema",
+    "sheets",
+    "pdf",
+    "serve",
+    "db",
+    "demo",
+    "importfile",
+    "export",
+    "metered",
+    "user",
+    "backup",
+)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
