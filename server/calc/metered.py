@@ -1271,6 +1271,7 @@ def _daily(
         return tuple(
             DailyPeak(date.fromordinal(first_day + i), max(series[bounds[i] : bounds[i + 1]]) * to_kva)
             for i in range(last_day - first_day + 1)
+            if bounds[i] < bounds[i + 1]  # a day without readings (intervals longer than a day)
         )
     wp = w if isinstance(pos, range) else [w[p] for p in pos]
     if days_known is not None and isinstance(pos, range):

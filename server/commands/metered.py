@@ -111,6 +111,8 @@ def command(file: Path, pf: float, as_json: bool, tz: str | None, strict: bool, 
         if exc.bad_rows:
             message += "\n" + "\n".join(_bad_rows_text(list(exc.bad_rows)))
         fail(message)
+    except Exception as exc:  # a fault of ours must still reach the user as a message, not a traceback
+        fail(f"{file}: could not be analysed ({type(exc).__name__}: {exc}); please report this file")
     if as_json:
         click.echo(json.dumps(result.to_json() | {"caution": CAUTION}, indent=2))
     else:

@@ -582,3 +582,42 @@ def test_offset_timestamp_on_a_clock_change_day_among_naive_ones() -> None:
     r = analyze_csv(_csv("timestamp,kVA", rows), tz="America/Chicago")
     assert [b.line for b in r.bad_rows] == [3]
     assert r.rows == 5 and r.peak_kva == 15
+
+
+_cell = st.one_of(
+    st.sampled_from(["", " ", "x", "nan", "-1", "1e400", "12.5", "0", "7", '"3"', "2024-01-01 00:15", "24:00"]),
+    st.text(alphabet='0123456789.-:/ TZ+,"\r\nAPM', max_size=20),
+    st.datetimes(min_value=datetime(2023, 3, 11), max_value=datetime(2023, 11, 6)).map(lambda t: f"{t:%Y-%m-%d %H:%M}"),
+    st.datetimes(min_value=datetime(2023, 3, 11), max_value=datetime(2023, 11, 6)).map(lambda t: f"{t:%m/%d/%Y %H:%M}"),
+    st.floats(allow_nan=True, allow_infinity=True).map(repr),
+)
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    header=st.sampled_from(["timestamp,kW", "timestamp,kVA_A,kVA_B", "Date,Time,W", "time;kW", "timestamp,Amps,V"]),
+    rows=st.lists(st.lists(_cell, min_size=1, max_size=4), max_size=30),
+    zone=st.sampled_from([None, "America/Chicago", "Europe/London"]),
+    strict=st.booleans(),
+)
+def test_any_text_gives_a_result_or_a_named_refusal(
+    header: str, rows: list[list[str]], zone: str | None, strict: bool
+) -> None:
+    """Whatever the bytes, the answer is a result or MeteredDataError, never another exception."""
+    delim = ";" if ";" in header else ","
+    text = header + "\n" + "\n".join(delim.join(r) for r in rows) + "\n"
+    try:
+        r = analyze_csv(text, tz=zone, strict=strict, name="fuzz.csv")
+    except MeteredDataError as exc:
+        assert str(exc).startswith("fuzz.csv: ")
+        return
+    assert r.readings >= 2 and r.peak_kva >= 0
+    assert all(b.line >= 2 for b in r.bad_rows)
+    r.to_json()
+
+
+def test_daily_readings_two_days_apart_skip_the_empty_days() -> None:
+    rows = ["2024-01-01 12:00,5", "2024-01-03 12:00,6", "2024-01-05 12:00,7"]
+    r = analyze_csv(_csv("timestamp,kVA", rows))
+    assert daily_peaks(r) == [("2024-01-01", 5.0), ("2024-01-03", 6.0), ("2024-01-05", 7.0)]
+    assert r.interval_minutes == 2 * 24 * 60
