@@ -57,6 +57,8 @@ def max_upload_bytes() -> int:
 
 
 def _mb(n: int) -> str:
+    if n < 1024 * 1024:
+        return f"{n / 1024:.0f} kB"
     return f"{n / (1024 * 1024):.1f} MB"
 
 

@@ -17,6 +17,7 @@ from __future__ import annotations
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from pathlib import PurePath
 from typing import Any
 from urllib.parse import quote, urlencode
 
@@ -30,7 +31,7 @@ from server.services import Conflict, NotFound, Services, Snapshot
 from server.sheets import MappingError, SheetFileError, SheetPlan, plan_sheets, preview_upload, read_upload
 from server.sheets.export import circuits_csv, project_xlsx, summary_csv
 from server.sheets.importer import ImportPreview, PreviewRow
-from server.sheets.limits import max_upload_bytes
+from server.sheets.limits import check_size, max_upload_bytes
 from server.sheets.mapping import ROLE_LABELS, ColumnMap, Role, column_letter, mapping_at
 from server.sheets.reader import Book, Grid
 from server.sheets.store import replace_panel_circuits
@@ -436,10 +437,12 @@ async def sheets_upload(request: Request, pid: int, svc: ServicesDep, templates:
         )
     data = await upload.read(limit + 1)
     filename = upload.filename
+    size = max(getattr(upload, "size", None) or 0, len(data))  # the whole upload's size, not just what was read
     await upload.close()
     if target and target != AUTO and snap.model.panel(target) is None:
         return _index(request, templates, snap, error=f"Panel {target!r} is not in this project.", status_code=422)
     try:
+        check_size(size, source=PurePath(filename).name, limit_bytes=limit)
         book = await run_in_threadpool(read_upload, data, filename, limit_bytes=limit)
         await run_in_threadpool(_initial_plans, book, snap, target, None)
     except (SheetFileError, MappingError) as exc:
