@@ -275,3 +275,19 @@ def test_preview_shows_other_stored_fields_and_marks_their_errors(client, app, d
     bad = _preview_row(page.text, 2)
     assert "mark-error" in bad.find("td", data_field="other").attrs["class"]
     assert "pf" in bad.find("td", class_="problems").text and "must be at most 1" in bad.text
+
+
+def test_workbook_with_a_sheet_per_panel_imports_every_panel(client, app, demo_id):
+    before = app.state.services.snapshot(demo_id)
+    xlsx = client.get(f"/projects/{demo_id}/sheets/export.xlsx").content
+    up = _upload(client, demo_id, "set.xlsx", xlsx, "auto")
+    page = client.get(up.headers["location"])
+    doc = parse(page.text)
+    legends = [f.find("legend").text for f in doc.find_all("fieldset", class_="sheet-plan")]
+    assert legends == [f"Sheet “{p.tag}” → panel {p.tag}" for p in before.model.panels]  # the Summary sheet is skipped
+    token = up.headers["location"].split("/imports/")[1].split("?")[0]
+    r = client.post(
+        f"/projects/{demo_id}/sheets/imports/{token}/commit", data=_form_of(page.text), follow_redirects=False
+    )
+    assert r.status_code == 303 and r.headers["location"].endswith("/tree")
+    assert app.state.services.snapshot(demo_id).model == before.model
