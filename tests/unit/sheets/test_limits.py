@@ -108,3 +108,21 @@ def test_upload_size_limit_from_the_setting(monkeypatch):
 def test_empty_file():
     with pytest.raises(SheetFileError, match="the file is empty"):
         read_upload(b"", "e.csv")
+
+
+def test_xml_entity_bomb_inside_a_small_workbook_is_refused():
+    """A "billion laughs" sheet is tiny when zipped, so the zip checks pass; the XML parser
+    (expat 2.4 or later limits entity amplification) stops it and the user gets a message."""
+    bomb = (
+        '<?xml version="1.0"?><!DOCTYPE lolz [<!ENTITY lol "lol">'
+        + "".join(f'<!ENTITY lol{i} "{("&lol%s;" % ("" if i == 1 else i - 1)) * 10}">' for i in range(1, 10))
+        + ']><worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"><sheetData>'
+        '<row r="1"><c r="A1" t="inlineStr"><is><t>&lol9;</t></is></c></row></sheetData></worksheet>'
+    )
+    buf = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(messy_xlsx())) as src, zipfile.ZipFile(buf, "w") as dst:
+        for info in src.infolist():
+            body = src.read(info)
+            dst.writestr(info, bomb.encode() if info.filename == "xl/worksheets/sheet1.xml" else body)
+    with pytest.raises(SheetFileError, match=r"laughs\.xlsx: cannot be read as an XLSX workbook"):
+        read_upload(buf.getvalue(), "laughs.xlsx")
