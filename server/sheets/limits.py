@@ -8,6 +8,8 @@
   corrupt file) instead of inflating past these limits.
 * Macro-enabled workbooks (``.xlsm``, or any workbook holding ``xl/vbaProject.bin``) are
   refused, not opened with the macros dropped: the user re-saves as ``.xlsx``.
+* An XML entity bomb inside a small sheet passes these checks but is stopped by the XML parser
+  (expat 2.4 or later caps entity amplification); the reader reports it as an unreadable file.
 * Formulas are never evaluated (the reader opens workbooks with ``data_only=False`` and reports
   each formula cell as a problem; see :mod:`server.sheets.reader`).
 """
