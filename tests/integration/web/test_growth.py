@@ -177,3 +177,10 @@ def test_whatif_bad_input_is_named_and_nothing_saved(client, app, demo_id):
     )
     assert r.status_code == 422  # slot 1 is taken
     assert app.state.services.snapshot(demo_id).data_version == before
+
+
+def test_panel_page_links_to_its_growth_page(client, demo_id):
+    doc = parse(client.get(f"/projects/{demo_id}/panels/LP-1").text)
+    link = doc.by_id("growth-link")
+    assert link is not None and link.attrs["href"] == f"/projects/{demo_id}/growth/nodes/LP-1"
+    assert client.get(link.attrs["href"]).status_code == 200
