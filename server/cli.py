@@ -27,6 +27,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "importfile",
     "export",
     "metered",
+    "balance",
     "user",
     "backup",
 )

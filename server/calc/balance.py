@@ -18,11 +18,12 @@ Conventions
   loads count 0; future loads count only when ``include_future`` (else the project setting).
 * A ``feeds`` circuit carries the connected VA of its subtree (sum of the counted circuit VA
   below it, a transformer adding its ``loss_pct``), computed by :func:`subtree_va`.
-* Neutral current (fundamental, phasor): I_N = |Σ I_k| over line-to-neutral (1-pole) circuits,
+* Neutral current (phasor): I_N1 = |Σ I_k| over line-to-neutral (1-pole) circuits,
   I_k = (VA_k / |V_p|) ∠ (arg V_p − arccos pf_k) with V_p the phase-to-neutral phasor of
-  :mod:`server.calc.systems` (lagging pf).  Line-to-line loads carry no neutral current.  Third
-  harmonic currents add in the neutral whatever the arrangement, so they do not affect the choice
-  and are left out here.
+  :mod:`server.calc.systems` (lagging pf); line-to-line loads carry no neutral current.  The
+  ``neutral`` objective minimises this fundamental.  Reported ``neutral_amps`` are computed by
+  the engine's :mod:`server.calc.loads` (same phasors, plus third-harmonic currents in
+  quadrature), so they match ``panelwright calc``; with ``harmonic3_pct`` = 0 they are equal.
 * Slot geometry (:mod:`server.calc.systems`): odd slots left, even right, row = (slot+1)//2; a
   P-pole breaker at slot s takes s, s+2, s+4 (successive rows, one side).
 
@@ -58,6 +59,7 @@ the number of moved breakers is minimised.  ``max_moves`` caps the moved breaker
 from __future__ import annotations
 
 import cmath
+import functools
 import itertools
 import math
 import time
@@ -65,9 +67,14 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from enum import StrEnum
 
+from . import loads
 from .errors import Problem, ProjectFileError
 from .model import Circuit, Panel, Project
-from .systems import SYSTEMS, SystemKind, SystemSpec, breaker_phases, breaker_slots, slot_side
+from .systems import SYSTEMS, SystemKind, SystemSpec, breaker_phases, slot_side
+from .systems import breaker_slots as _breaker_slots
+
+# slot geometry is asked for hundreds of thousands of times by the search; it never changes
+breaker_slots = functools.lru_cache(maxsize=4096)(_breaker_slots)
 
 #: Directions of the polygon that stands in for |I_N| in the linear programme (see
 #: :mod:`server.calc.balance_milp`): max projection ≥ |v|·cos(π/K).
@@ -202,8 +209,13 @@ def circuit_load_va(circuit: Circuit, include_future: bool, feeds_va: Mapping[st
     return float(circuit.va or 0.0)
 
 
+@functools.lru_cache(maxsize=4096)
+def _phases_at(spec: SystemSpec, slot: int, poles: int) -> tuple[str, ...]:
+    return breaker_phases(spec, slot, poles)
+
+
 def _placement_phase_va(spec: SystemSpec, slot: int, poles: int, va: float) -> dict[str, float]:
-    phases = breaker_phases(spec, slot, poles)
+    phases = _phases_at(spec, slot, poles)
     share = va / len(phases)
     out: dict[str, float] = {}
     for p in phases:
@@ -221,19 +233,26 @@ def _placement_neutral(spec: SystemSpec, slot: int, poles: int, va: float, pf: f
 def panel_loading(
     panel: Panel, *, include_future: bool = False, feeds_va: Mapping[str, float] | None = None
 ) -> PhaseLoading:
-    """Phase VA (trade convention) and phasor neutral current of a panel as arranged."""
+    """Phase VA (trade convention) and neutral current of a panel as arranged.
+
+    Uses the calculation engine's own load functions (:mod:`server.calc.loads`) so the figures
+    match ``panelwright calc``: the neutral current is the phasor sum of the line-to-neutral
+    currents, with third-harmonic currents (``harmonic3_pct``) added in quadrature.
+    """
     spec = _spec(panel)
     feeds = feeds_va or {}
     phase_va = dict.fromkeys(spec.phases, 0.0)
-    neutral = 0j
+    neutral_terms: list[tuple[complex, float, complex]] = []
     for c in panel.circuits:
         va = circuit_load_va(c, include_future, feeds)
         if va == 0.0:
             continue
-        for p, x in _placement_phase_va(spec, c.slot, c.poles, va).items():
+        for p, x in loads.circuit_phase_va(spec, c.slot, c.poles, va).items():
             phase_va[p] += x
-        neutral += _placement_neutral(spec, c.slot, c.poles, va, c.effective_pf)
-    return PhaseLoading(phase_va, abs(neutral) if spec.has_neutral else None)
+        if c.poles == 1 and spec.has_neutral:
+            for p, current in loads.circuit_currents(spec, c.slot, 1, va, c.effective_pf).items():
+                neutral_terms.append((current, c.harmonic3_pct, loads.triplen_rotation(spec, p)))
+    return PhaseLoading(phase_va, loads.neutral_from_loads(neutral_terms) if spec.has_neutral else None)
 
 
 def subtree_va(project: Project, tag: str, include_future: bool, _seen: frozenset[str] = frozenset()) -> float:
@@ -337,6 +356,11 @@ class PlacementType:
     neutral_a: tuple[complex, ...]  # per start: neutral current phasor contribution
     original_starts: tuple[int, ...]  # members' current first slots
 
+    @functools.cached_property
+    def index(self) -> dict[int, int]:
+        """Position of each start in ``starts``."""
+        return {s: j for j, s in enumerate(self.starts)}
+
 
 @dataclass(frozen=True)
 class PlacementModel:
@@ -418,15 +442,19 @@ def build_model(
             cov = breaker_slots(s, poles)
             if any(x not in region_set for x in cov):
                 continue
-            if poles == 1 and spec.high_leg and breaker_phases(spec, s, 1)[0] == spec.high_leg:
+            if poles == 1 and spec.high_leg and _phases_at(spec, s, 1)[0] == spec.high_leg:
                 continue
             starts.append(s)
         pv = []
         na = []
+        by_phases: dict[tuple[str, ...], tuple[tuple[float, ...], complex]] = {}
         for s in starts:
-            d = _placement_phase_va(spec, s, poles, va)
-            pv.append(tuple(d.get(p, 0.0) for p in phases))
-            na.append(_placement_neutral(spec, s, poles, va, pf))
+            key = _phases_at(spec, s, poles)
+            if key not in by_phases:  # the contribution depends only on the phases covered
+                d = _placement_phase_va(spec, s, poles, va)
+                by_phases[key] = (tuple(d.get(p, 0.0) for p in phases), _placement_neutral(spec, s, poles, va, pf))
+            pv.append(by_phases[key][0])
+            na.append(by_phases[key][1])
         types.append(
             PlacementType(
                 poles=poles,
@@ -455,7 +483,7 @@ def evaluate(model: PlacementModel, starts: Sequence[Sequence[int]]) -> tuple[tu
     va = list(model.fixed_phase_va)
     neutral = model.fixed_neutral_a
     for t, chosen in zip(model.types, starts, strict=True):
-        index = {s: j for j, s in enumerate(t.starts)}
+        index = t.index
         for s in chosen:
             j = index[s]
             for k, x in enumerate(t.phase_va[j]):
@@ -501,13 +529,103 @@ def phase_va_lower_bound(model: PlacementModel) -> float:
             for t in model.types:
                 if not t.starts:
                     continue
-                m = min(sum(pv[p] for p in subset) for pv in t.phase_va)
+                m = min(sum(pv[p] for p in subset) for pv in set(t.phase_va))
                 total += m * len(t.members)
             best = max(best, total / size)
     for t in model.types:
         if t.starts:
-            single = min(max(f + x for f, x in zip(model.fixed_phase_va, pv, strict=True)) for pv in t.phase_va)
+            single = min(max(f + x for f, x in zip(model.fixed_phase_va, pv, strict=True)) for pv in set(t.phase_va))
             best = max(best, single)
+    return best
+
+
+def assignment_lower_bound(model: PlacementModel, upper_va: float, *, node_limit: int = 30_000) -> float | None:
+    """A lower bound on the largest phase VA from the phase-assignment relaxation, or None if cut short.
+
+    Relaxation: forget where on the panel a breaker sits and keep only which phases it lands on.
+    Each movable breaker picks one of the phase patterns its feasible starts offer (so high-leg
+    and side rules still narrow the choice), 3-pole breakers add a third to every phase, and the
+    slots of each phase limit how many poles may land on it (sides merged; breakers carrying no
+    load left out).  Every real arrangement gives such a choice with the same phase loads, so
+    the least largest phase VA over the choices (R*) is ≤ the optimum: a valid lower bound.
+
+    R* is found by depth-first branch and bound (heaviest breakers first, identical breakers
+    kept in non-decreasing pattern order, nodes cut when max(max_p L_p, (Σ L_p + VA left)/n)
+    reaches the best leaf so far, starting from ``upper_va``, a value some arrangement achieves).
+    A finished search proves R* = the best leaf (or R* ≥ ``upper_va`` when no leaf beats it).
+    After ``node_limit`` nodes it gives up and returns None.
+    """
+    n = len(model.phases)
+    if n < 2:
+        return None
+    base = list(model.fixed_phase_va)
+    capacity = [0] * n
+    index = {s: ((s + 1) // 2 - 1) % n for s in model.region}
+    for s in model.region:
+        capacity[index[s]] += 1
+    items: list[tuple[float, int, tuple[tuple[tuple[float, ...], tuple[int, ...]], ...]]] = []
+    for ti, t in enumerate(model.types):
+        patterns: set[tuple[tuple[float, ...], tuple[int, ...]]] = set()
+        for s, pv in zip(t.starts, t.phase_va, strict=True):
+            use = [0] * n
+            for x in breaker_slots(s, t.poles):
+                use[index[x]] += 1
+            patterns.add((pv, tuple(use)))
+        if not patterns:
+            return None  # a breaker with nowhere to go: no bound from here
+        if len(patterns) == 1:  # one choice: its load and its slots are fixed
+            pv, use = next(iter(patterns))
+            for _ in t.members:
+                for k in range(n):
+                    base[k] += pv[k]
+                    capacity[k] -= use[k]
+            continue
+        if t.va == 0.0:
+            continue  # no load, several choices: leaving its slots out only loosens the relaxation
+        options = tuple(sorted(patterns))
+        for _ in t.members:
+            items.append((t.va, ti, options))
+    if any(c < 0 for c in capacity):
+        return None
+    items.sort(key=lambda it: (-it[0], it[1]))
+    remaining = [0.0] * (len(items) + 1)
+    for i in range(len(items) - 1, -1, -1):
+        remaining[i] = remaining[i + 1] + items[i][0]
+    best = upper_va
+    nodes = 0
+    loads = base[:]
+    cap = capacity[:]
+
+    def dfs(i: int, prev_type: int, prev_opt: int) -> bool:
+        nonlocal best, nodes
+        nodes += 1
+        if nodes > node_limit:
+            return False
+        current = max(loads)
+        if max(current, (sum(loads) + remaining[i]) / n) >= best - 1e-9:
+            return True
+        if i == len(items):
+            best = current
+            return True
+        _va, ti, options = items[i]
+        first = prev_opt if ti == prev_type else 0
+        for j in range(first, len(options)):
+            pv, use = options[j]
+            if any(cap[k] < use[k] for k in range(n)):
+                continue
+            for k in range(n):
+                loads[k] += pv[k]
+                cap[k] -= use[k]
+            ok = dfs(i + 1, ti, j)
+            for k in range(n):
+                loads[k] -= pv[k]
+                cap[k] += use[k]
+            if not ok:
+                return False
+        return True
+
+    if not dfs(0, -1, 0):
+        return None
     return best
 
 
@@ -522,17 +640,88 @@ def solve_heuristic(
     tolerance_pct: float = 0.0,
     time_limit_s: float = 5.0,
 ) -> PlacementSolution:
-    """Steepest descent from the present arrangement; few moves by construction.
+    """Two descents from the present arrangement (steepest, and fewest-moves-first); of every
+    state either visited, the one with the fewest moved breakers within ``tolerance_pct`` of the
+    best value found.  See :func:`_descent`.  No optimality claim; the caller compares with
+    :func:`phase_va_lower_bound`.
+    """
+    deadline = time.monotonic() + time_limit_s
+    paths: list[tuple[float, int, tuple[int, ...]]] = []
+    tidx: list[int] = []
+    for few_first in (False, True):
+        tidx, path = _descent(model, objective, max_moves, deadline, few_moves_first=few_first)
+        paths.extend(path)
+    best_value = min(p[0] for p in paths)
+    cap = best_value * (1.0 + tolerance_pct / 100.0) + 1e-6 * max(1.0, best_value)
+    _value, _moves, chosen = min((p for p in paths if p[0] <= cap), key=lambda p: (p[1], p[0]))
+    start = _revert_pass(model, objective, tidx, list(chosen), cap, deadline)
+    return PlacementSolution(_starts_from(model, tidx, start), None, False)
+
+
+def _revert_pass(
+    model: PlacementModel, objective: Objective, tidx: Sequence[int], start: list[int], cap: float, deadline: float
+) -> list[int]:
+    """Put moved breakers back where they were while the objective stays ≤ cap.
+
+    A moved breaker returns to its original first slot when that slot is free, or by swapping
+    with the one breaker of equal pole count now there (which takes the returning breaker's
+    place).  Each accepted step lowers the number of moved breakers, so the pass ends.
+    """
+    orig = [s for t in model.types for s in t.original_starts]
+    poles = [model.types[ti].poles for ti in tidx]
+    feasible = [set(t.starts) for t in model.types]
+
+    def value() -> float:
+        return objective_value(model, _starts_from(model, tidx, start), objective)
+
+    changed = True
+    while changed and time.monotonic() < deadline:
+        changed = False
+        occ = {x: b for b in range(len(start)) for x in breaker_slots(start[b], poles[b])}
+        for a in range(len(start)):
+            if start[a] == orig[a]:
+                continue
+            here = start[a]
+            blockers = {occ[x] for x in breaker_slots(orig[a], poles[a]) if x in occ} - {a}
+            if len(blockers) > 1:
+                continue
+            saved = list(start)
+            start[a] = orig[a]
+            if blockers:
+                b = blockers.pop()
+                if poles[b] != poles[a] or here not in feasible[tidx[b]]:
+                    start[:] = saved
+                    continue
+                start[b] = here
+            elif any(occ.get(x, a) != a for x in breaker_slots(orig[a], poles[a])):
+                start[:] = saved
+                continue
+            if value() <= cap:
+                changed = True
+                occ = {x: b for b in range(len(start)) for x in breaker_slots(start[b], poles[b])}
+            else:
+                start[:] = saved
+    return start
+
+
+def _descent(
+    model: PlacementModel,
+    objective: Objective,
+    max_moves: int | None,
+    deadline: float,
+    *,
+    few_moves_first: bool,
+) -> tuple[list[int], list[tuple[float, int, tuple[int, ...]]]]:
+    """Descent from the present arrangement; returns (type of each breaker, visited states).
 
     Each step applies the single best exchange — a swap of two breakers of equal pole count (each
     start feasible for the other) or a move of one breaker into free slots — ranked by
     (objective, Σ phase VA²) for max-phase (the second term walks across plateaus where two
     phases tie) or (|I_N|, largest phase VA) for neutral.  It stops when no exchange improves or
-    ``max_moves`` would be exceeded.  Of the states visited, the one with the fewest moved
-    breakers within ``tolerance_pct`` of the best value is returned.  No optimality claim; the
-    caller compares with :func:`phase_va_lower_bound`.
+    ``max_moves`` would be exceeded.  ``few_moves_first`` ranks improving exchanges by the
+    change in moved breakers first, then by the ranking above.  Each visited state is returned
+    as (objective value, moved breakers, first slot of each breaker).
     """
-    deadline = time.monotonic() + time_limit_s
     n_ph = len(model.phases)
     use_neutral = objective == Objective.NEUTRAL
     tidx: list[int] = []
@@ -565,6 +754,14 @@ def solve_heuristic(
             return True
         return k2[0] <= cur[0] + tol0 and k2[1] < cur[1] - 1e-9 * max(1.0, abs(cur[1]))
 
+    # moves into free slots only exist when the region has slots no breaker holds
+    has_free = len(occ) < len(model.region)
+
+    def prefer(k2: tuple[float, float], dm: int, incumbent: tuple) -> bool:
+        if few_moves_first and dm != incumbent[4]:
+            return dm < incumbent[4]
+        return better(k2, incumbent[0]) or (k2 == incumbent[0] and dm < incumbent[4])
+
     moved = 0
     current = key(loads, neutral)
     path: list[tuple[float, int, tuple[int, ...]]] = [(current[0], 0, tuple(start))]
@@ -588,9 +785,9 @@ def solve_heuristic(
                 if max_moves is not None and moved + dm > max_moves:
                     continue
                 k2 = key(ld, nn)
-                if better(k2, current) and (best is None or better(k2, best[0]) or (k2 == best[0] and dm < best[4])):
+                if better(k2, current) and (best is None or prefer(k2, dm, best)):
                     best = (k2, 0, a, b, dm)
-            for s in model.types[ta].starts:
+            for s in model.types[ta].starts if has_free else ():
                 if s == sa:
                     continue
                 if any(occ.get(x, a) != a for x in breaker_slots(s, poles[a])):
@@ -601,7 +798,7 @@ def solve_heuristic(
                 if max_moves is not None and moved + dm > max_moves:
                     continue
                 k2 = key(ld, nn)
-                if better(k2, current) and (best is None or better(k2, best[0]) or (k2 == best[0] and dm < best[4])):
+                if better(k2, current) and (best is None or prefer(k2, dm, best)):
                     best = (k2, 1, a, s, dm)
         if best is None:
             break
@@ -633,10 +830,7 @@ def solve_heuristic(
         moved += dm
         current = k2
         path.append((current[0], moved, tuple(start)))
-    best_value = min(p[0] for p in path)
-    cap = best_value * (1.0 + tolerance_pct / 100.0) + 1e-6 * max(1.0, best_value)
-    _value, _moves, chosen = min((p for p in path if p[0] <= cap), key=lambda p: (p[1], p[0]))
-    return PlacementSolution(_starts_from(model, tidx, list(chosen)), None, False)
+    return tidx, path
 
 
 def _starts_from(model: PlacementModel, tidx: Sequence[int], start: Sequence[int]) -> tuple[tuple[int, ...], ...]:
@@ -698,7 +892,8 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
 
     1. Steepest descent from the present arrangement (:func:`solve_heuristic`).
     2. For max-phase, when the result is within ``mip_gap_pct`` of :func:`phase_va_lower_bound`
-       and the panel is not small, that certificate is enough: stop.
+       (or, failing that, of :func:`assignment_lower_bound`) and the panel is not small, that
+       certificate is enough: stop.
     3. Otherwise the exact solver (when importable): step A minimises the objective (to
        ``mip_gap_pct``, or to optimality at ≤ EXACT_BREAKERS breakers), step B minimises moves
        with the objective capped at (best value) × (1 + tolerance_pct / 100).  The better of the
@@ -721,6 +916,11 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
         return _Outcome(best, bound, False, name)
     if objective == Objective.MAX_PHASE:
         certified = value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
+        if not certified:
+            relaxed = assignment_lower_bound(model, value)
+            if relaxed is not None:
+                bound = max(bound, relaxed)
+                certified = value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
     else:
         certified = value <= NEUTRAL_SETTLED_A
     if certified and not small and options.solver == Solver.AUTO:
