@@ -20,10 +20,12 @@ from tests.integration.web.html import parse
 
 def _three_revisions(app, pid: int) -> None:
     """Rev 1 as imported; rev 2 after a VA change on LP-1; rev 3 after a future load on LP-2; then a working edit."""
+    from server import revisions  # the team's issue path (it calls Services.issue_revision)
+
     svc = app.state.services
-    svc.issue_revision(pid, description="Issued for review", issued_by="AB")
+    revisions.issue(svc, pid, description="Issued for review", issued_by="AB")
     svc.edit_circuit(pid, "LP-1", 1, {"va": "4200"})
-    svc.issue_revision(pid, description="Tenant changes", issued_by="AB")
+    revisions.issue(svc, pid, description="Tenant changes", issued_by="AB")
     lp2 = svc.snapshot(pid).model.panel("LP-2")
     free = next(s for s in range(1, lp2.spaces + 1, 2) if lp2.circuit_at(s) is None and s not in _covered(lp2))
     svc.edit_circuit(
@@ -33,7 +35,7 @@ def _three_revisions(app, pid: int) -> None:
         {"description": "Future kiosk", "category": "equipment", "va": "3000", "status": "future"},
         create=True,
     )
-    svc.issue_revision(pid, description="Future kiosk shown", issued_by="AB")
+    revisions.issue(svc, pid, description="Future kiosk shown", issued_by="AB")
     svc.edit_circuit(pid, "LP-1", 1, {"va": "5000"})
 
 
