@@ -104,3 +104,15 @@ def test_subprocess_bad_input_has_no_traceback(tmp_path: Path) -> None:
     assert ok.returncode == 0
     assert json.loads(ok.stdout)["transformers"]["T1"]["suggested_kva"] == 75
     assert CAUTION in ok.stderr
+
+
+def test_demo_project_reports_every_element() -> None:
+    from server.calc.projectfile import load_project_file
+    from tests.helpers import DEMO_FILE
+
+    project = load_project_file(DEMO_FILE)
+    r = _run(str(DEMO_FILE))
+    assert r.exit_code == 0
+    for element in (*project.sources, *project.transformers, *project.panels):
+        assert f" {element.tag} " in r.output, element.tag
+    assert r.output.count(CAUTION) == 2  # at the head and at the foot of the report
