@@ -403,7 +403,7 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
         if si is None:
             si = info[(slot, poles)] = _SlotInfo(spec, slot, poles)
         cat = c.category
-        catv = "equipment" if cat is None else cat.value
+        catv = "equipment" if cat is None else cat._value_  # the plain attribute behind .value
         if catv == "spare":
             spare_breakers += 1
         va = c.va or 0.0
