@@ -35,3 +35,18 @@ def test_importing_server_calc_loads_no_framework() -> None:
         assert name in report["modules"]
     leaked = sorted(set(FORBIDDEN) & set(report["top"]))
     assert not leaked, f"server.calc imports {leaked}"
+
+
+def test_the_engine_itself_is_standard_library_only() -> None:
+    # numpy/scipy are allowed only in a separate module that needs them (the balancer's solver);
+    # the engine, the loads and the project-file parser must not pull them in.
+    probe = (
+        "import json, sys\n"
+        "import server.calc.engine, server.calc.loads, server.calc.projectfile\n"
+        "print(json.dumps(sorted({m.split('.')[0] for m in sys.modules})))\n"
+    )
+    proc = subprocess.run([sys.executable, "-c", probe], cwd=ROOT, capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    top = set(json.loads(proc.stdout.strip().splitlines()[-1]))
+    assert "server" in top
+    assert not top & {"numpy", "scipy", *FORBIDDEN}
