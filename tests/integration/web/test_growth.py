@@ -186,3 +186,21 @@ def test_panel_page_links_to_its_growth_page(client, demo_id):
     link = doc.by_id("growth-link")
     assert link is not None and link.attrs["href"] == f"/projects/{demo_id}/growth/nodes/LP-1"
     assert client.get(link.attrs["href"]).status_code == 200
+
+
+def test_a_reviewer_may_preview_but_not_apply_or_import(app, demo_id):
+    from fastapi.testclient import TestClient
+
+    from tests.integration.web.conftest import sign_in
+
+    version = app.state.services.snapshot(demo_id).data_version
+    with TestClient(app, raise_server_exceptions=False) as c:
+        sign_in(c, app, "reviewer")
+        base = f"/projects/{demo_id}/growth/nodes/LP-2/whatif"
+        query = {"kva": "1", "category": "equipment", "poles": "1"}
+        assert c.get(f"/projects/{demo_id}/growth").status_code == 200
+        assert c.get(base, params=query).status_code == 200
+        assert c.post(base, data={**query, "slot": "25"}).status_code == 403
+        r = c.post(f"/projects/{demo_id}/growth/metered/preview", data={"node": "LP-1"})
+        assert r.status_code == 403
+    assert app.state.services.snapshot(demo_id).data_version == version
