@@ -65,6 +65,7 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta, tzinfo
 from enum import StrEnum
+from functools import partial
 from itertools import islice, repeat
 from operator import add, floordiv, le, lt, sub
 from pathlib import Path
@@ -783,6 +784,19 @@ class _WallDays(dict[int, Any]):
         self[day] = value
         return value
 
+    def prefill(self, first: int, last: int) -> None:
+        """Compute days ``first``..``last`` in one sweep (C-level maps over the midnights)."""
+        days = range(first, last + 3)
+        at = partial(datetime.replace, tzinfo=self.tz)
+        offs = list(map(datetime.utcoffset, map(at, map(datetime.fromordinal, days))))
+        self._midnights.update(zip(zip(days, repeat(0)), offs, strict=True))
+        for i, day in enumerate(range(first, last + 1)):
+            here, there = offs[i], offs[i + 1]
+            if here != there or (offs[i + 2] != there and self._midnight(day + 1, 1) != there):
+                self[day] = _CHANGES
+            else:
+                self[day] = here
+
     def _midnight(self, day: int, fold: int) -> timedelta:
         key = (day, fold)
         off = self._midnights.get(key)
@@ -867,6 +881,10 @@ def _indices_of(values: list[Any], marker: object) -> list[int]:
         out.append(k)
 
 
+def _naive(t: datetime) -> datetime:
+    return t.replace(tzinfo=None)
+
+
 def _zone_name(tz: tzinfo) -> str:
     return getattr(tz, "key", None) or str(tz)
 
@@ -945,6 +963,9 @@ def _instants(
     # Naive wall-clock times in ``tz``: instants become naive UTC datetimes.
     wall_days = _WallDays(tz)
     ordinals = list(map(datetime.toordinal, times))
+    first_day, last_day = min(ordinals), max(ordinals)
+    if last_day - first_day <= 4 * n + 400:  # a recording, not a scatter of far-apart dates
+        wall_days.prefill(first_day, last_day)
     offs = list(map(wall_days.__getitem__, ordinals))
     dst_repeats = 0
     passes: dict[datetime, list[int | None]] = {}  # ambiguous wall time -> [first pass, second pass]
@@ -1047,14 +1068,21 @@ def _analyze(
     placed: list[str] = []
     first_bad: list[BadRow] = []
     try:
-        u, w, dst_repeats, first_bad, to_dt = _instants(cols, tz, placed, check_mixed=False)
-        deltas = list(map(sub, islice(u, 1, None), u))
-        more_bad: list[BadRow] = first_bad
-    except TypeError:  # naive and offset timestamps mixed: sort them out, then place again
-        bad += first_bad
-        placed = []
-        u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, placed)
-        deltas = list(map(sub, islice(u, 1, None), u))
+        try:
+            u, w, dst_repeats, first_bad, to_dt = _instants(cols, tz, placed, check_mixed=False)
+            deltas = list(map(sub, islice(u, 1, None), u))
+            more_bad: list[BadRow] = first_bad
+        except TypeError:  # naive and offset timestamps mixed: sort them out, then place again
+            bad += first_bad
+            placed = []
+            u, w, dst_repeats, more_bad, to_dt = _instants(cols, tz, placed)
+            deltas = list(map(sub, islice(u, 1, None), u))
+    except (OverflowError, ValueError):  # datetime's range ends at years 1 and 9999
+        raise MeteredDataError(
+            f"timestamps from {min(cols.times, key=_naive).date()} to {max(cols.times, key=_naive).date()} cannot be "
+            f"placed in {_zone_name(tz) if tz else 'UTC'} (too near year 1 or 9999)",
+            source=source,
+        ) from None
     notes += placed
     wall_is_instant = w is u  # then local days follow the instants' order
     bad += more_bad

@@ -621,3 +621,23 @@ def test_daily_readings_two_days_apart_skip_the_empty_days() -> None:
     r = analyze_csv(_csv("timestamp,kVA", rows))
     assert daily_peaks(r) == [("2024-01-01", 5.0), ("2024-01-03", 6.0), ("2024-01-05", 7.0)]
     assert r.interval_minutes == 2 * 24 * 60
+
+
+@pytest.mark.parametrize("zone", [None, "America/Chicago", "Asia/Tokyo"])
+@pytest.mark.parametrize(
+    "stamps",
+    [
+        ("9999-12-31 23:00", "9999-12-31 23:15"),
+        ("0001-01-01 00:00", "0001-01-01 00:15"),
+        ("0001-01-01T00:00+00:00", "0001-01-01T00:15+00:00"),
+    ],
+)
+def test_timestamps_at_the_ends_of_the_calendar_are_refused_by_name_or_read(
+    zone: str | None, stamps: tuple[str, str]
+) -> None:
+    try:
+        r = analyze_csv(_csv("timestamp,kVA", [f"{stamps[0]},1", f"{stamps[1]},2"]), tz=zone)
+    except MeteredDataError as exc:
+        assert "too near year 1 or 9999" in str(exc)
+    else:
+        assert r.peak_kva == 2 and r.interval_minutes == 15
