@@ -140,3 +140,28 @@ def test_source_has_no_rating() -> None:
     h = _headroom(_project(_panel()))["UTIL"]
     assert h.binding == Limit.NONE
     assert math.isinf(h.min_amps)
+
+
+def test_cumulative_voltage_drop_bound_through_two_feeders() -> None:
+    """Two 600 ft 3/0 feeders in series, each at about 2.4 %: the 5 % total binds before either 3 %.
+
+    Adding the headroom as a balanced load on P brings the cumulative drop at P to exactly 5 %
+    (NEC 215.2(A)(2) Informational Note No. 2 recommendation; drops proportional to load).
+    """
+    top = Panel(
+        "TOP",
+        W208,
+        fed_from="UTIL",
+        feeder=Feeder(length_ft=600.0, size="3/0", ocpd_amps=200),
+        circuits=(Circuit(slot=1, poles=3, feeds="P", breaker_amps=200),),
+    )
+    p = Panel("P", W208, feeder=Feeder(length_ft=600.0, size="3/0", ocpd_amps=200), circuits=(_load(1, 22_000.0),))
+    project = Project(ProjectInfo("Headroom test"), (Source("UTIL", W208),), (), (top, p))
+    result = compute_project(project)
+    h = compute_headroom(project, result)["P"]
+    assert h.binding == Limit.VOLTAGE_DROP and "total" in h.binding_detail
+    added_va = h.min_amps * phase_va_per_amp(SYSTEMS[W208]) * 3
+    grown = replace(p, circuits=(*p.circuits, _load(2, added_va)))
+    after = compute_project(Project(project.project, project.sources, (), (top, grown))).panels["P"].feeder
+    assert after is not None
+    assert_close(after.cumulative_voltage_drop_pct, project.project.vd_total_pct, rel=1e-6)
