@@ -103,6 +103,7 @@ class BalanceOptions:
     time_limit_s: float = 5.0  # per solver call
     mip_gap_pct: float = 0.5  # proven gap (%) at which the search stops: heuristic certificate or exact solver
     solver: Solver = Solver.AUTO
+    fewest_moves: bool = False  # also run the exact fewest-moves step when the bound already certifies the search
 
 
 @dataclass(frozen=True)
@@ -893,7 +894,7 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
     1. Steepest descent from the present arrangement (:func:`solve_heuristic`).
     2. For max-phase, when the result is within ``mip_gap_pct`` of :func:`phase_va_lower_bound`
        (or, failing that, of :func:`assignment_lower_bound`) and the panel is not small, that
-       certificate is enough: stop.
+       certificate is enough: stop — unless ``fewest_moves`` asks for step B below anyway.
     3. Otherwise the exact solver (when importable): step A minimises the objective (to
        ``mip_gap_pct``, or to optimality at ≤ EXACT_BREAKERS breakers), step B minimises moves
        with the objective capped at (best value) × (1 + tolerance_pct / 100).  The better of the
@@ -923,7 +924,7 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
                 certified = value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
     else:
         certified = value <= NEUTRAL_SETTLED_A
-    if certified and not small and options.solver == Solver.AUTO:
+    if certified and not small and options.solver == Solver.AUTO and not options.fewest_moves:
         return _Outcome(best, bound, False, name)
     try:
         from . import balance_milp as milp
@@ -933,7 +934,8 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
         return _Outcome(best, bound, False, name)
     name = "heuristic+milp"
     scale = max(1.0, bound, value)
-    proven = value <= bound + 1e-9 * scale  # the heuristic already meets the bound
+    # the heuristic already meets the bound, or is certified and only the moves step is wanted
+    proven = value <= bound + 1e-9 * scale or (certified and not small and options.solver == Solver.AUTO)
     step_a = PlacementSolution((), None, proven)
     if not proven:
         step_a = milp.solve(

@@ -69,6 +69,11 @@ OBJECTIVE_WORDS = {
     help="Fewest moves among arrangements within this %% of the best found.",
 )
 @click.option(
+    "--fewest-moves",
+    is_flag=True,
+    help="Always run the exact fewest-moves step (slower on large panels; proves the move count).",
+)
+@click.option(
     "--include-future/--no-include-future",
     "include_future",
     default=None,
@@ -93,6 +98,7 @@ def command(
     keep_sides: bool,
     allow_spaces: bool,
     tolerance_pct: float,
+    fewest_moves: bool,
     include_future: bool | None,
     time_limit_s: float,
     as_json: bool,
@@ -115,6 +121,7 @@ def command(
         include_future=include_future,
         tolerance_pct=tolerance_pct,
         time_limit_s=time_limit_s,
+        fewest_moves=fewest_moves,
     )
     try:
         if panel_tag is not None:

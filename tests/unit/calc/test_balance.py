@@ -31,11 +31,13 @@ from server.calc.balance import (
     Objective,
     Solver,
     apply_moves,
+    assignment_lower_bound,
     balance_panel,
     balance_panel_in_project,
     balance_transformer,
     best_rotations,
     build_model,
+    evaluate,
     inverse_moves,
     panel_loading,
     phase_va_lower_bound,
@@ -553,6 +555,8 @@ def test_random_small_panels_match_exhaustive(seed: int, allow: bool, sides: boo
     optimum = best_of(arrangements, Objective.MAX_PHASE)
     model = build_model(panel, opts, False, feeds)
     assert phase_va_lower_bound(model) <= optimum + 1e-6  # the bound never exceeds the optimum
+    relaxed = assignment_lower_bound(model, optimum + 1000.0)
+    assert relaxed is None or relaxed <= optimum + 1e-6
     prop = balance_panel(panel, opts, feeds_va=feeds)
     assert prop.lower_bound_va <= optimum + 1e-6
     assert_close(prop.after.max_phase_va, optimum, rel=1e-9, abs_=1e-6, what=f"seed {seed}")
@@ -669,3 +673,45 @@ def test_transformer_rotation_skips_high_leg() -> None:
         pytest.skip("demo has no high-leg transformer")
     prop = balance_transformer(project, high_leg[0].tag)
     assert all(r.rotation == 0 and not r.rotatable for r in prop.rotations)
+
+
+def test_fewest_moves_option_proves_the_move_count() -> None:
+    project = load_project_file(DEMO_FILE)
+    panel = max(project.panels, key=lambda p: sum(c.poles == 1 for c in p.circuits))
+    quick = balance_panel_in_project(project, panel.tag)
+    exact = balance_panel_in_project(project, panel.tag, BalanceOptions(fewest_moves=True))
+    assert exact.moves_minimal
+    assert exact.breaker_moves <= quick.breaker_moves
+    assert exact.after.max_phase_va <= quick.after.max_phase_va * (1 + 1e-9) + 1e-6
+
+
+def test_future_loads_count_only_when_included() -> None:
+    panel = Panel(
+        tag="LP-F",
+        system="208Y/120 3PH 4W",
+        spaces=6,
+        circuits=(
+            Circuit(slot=1, poles=1, va=1000.0),
+            Circuit(slot=3, poles=1, va=1000.0, status=Status.FUTURE),
+            Circuit(slot=5, poles=1, va=1000.0, status=Status.REMOVED),
+        ),
+    )
+    assert panel_loading(panel).phase_va == {"A": 1000.0, "B": 0.0, "C": 0.0}
+    assert panel_loading(panel, include_future=True).phase_va == {"A": 1000.0, "B": 1000.0, "C": 0.0}
+    assert balance_panel(panel, BalanceOptions(include_future=True)).before.phase_va["B"] == 1000.0
+    assert balance_panel(panel).before.phase_va["B"] == 0.0
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1))
+def test_model_arithmetic_matches_the_engine_loads(seed: int) -> None:
+    """The objective the search minimises is the engine's own figure (server.calc.loads)."""
+    panel, feeds = random_panel(random.Random(seed), max_movable=10, max_spaces=24)
+    panel = replace(panel, circuits=tuple(replace(c, harmonic3_pct=0.0) for c in panel.circuits))
+    model = build_model(panel, BalanceOptions(), False, feeds)
+    loads, neutral = evaluate(model, tuple(tuple(sorted(t.original_starts)) for t in model.types))
+    engine = panel_loading(panel, feeds_va=feeds)
+    for value, phase in zip(loads, model.phases, strict=True):
+        assert value == pytest.approx(engine.phase_va[phase], abs=1e-6)
+    if engine.neutral_amps is not None:
+        assert abs(neutral) == pytest.approx(engine.neutral_amps, abs=1e-6)
