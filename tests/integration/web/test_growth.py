@@ -181,11 +181,12 @@ def test_whatif_bad_input_is_named_and_nothing_saved(client, app, demo_id):
     assert app.state.services.snapshot(demo_id).data_version == before
 
 
-def test_panel_page_links_to_its_growth_page(client, demo_id):
-    doc = parse(client.get(f"/projects/{demo_id}/panels/LP-1").text)
-    link = doc.by_id("growth-link")
-    assert link is not None and link.attrs["href"] == f"/projects/{demo_id}/growth/nodes/LP-1"
-    assert client.get(link.attrs["href"]).status_code == 200
+def test_panel_and_transformer_pages_link_to_their_growth_page(client, demo_id):
+    for kind, tag in (("panels", "LP-1"), ("transformers", "T-1")):
+        doc = parse(client.get(f"/projects/{demo_id}/{kind}/{tag}").text)
+        link = doc.by_id("growth-link")
+        assert link is not None and link.attrs["href"] == f"/projects/{demo_id}/growth/nodes/{tag}"
+        assert client.get(link.attrs["href"]).status_code == 200
 
 
 def test_a_reviewer_may_preview_but_not_apply_or_import(app, demo_id):
