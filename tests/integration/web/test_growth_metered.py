@@ -61,6 +61,7 @@ def test_bad_row_is_reported_with_its_line_and_nothing_is_stored_until_confirmed
     assert r.status_code == 303
     rows = _stored(app, demo_id)
     assert len(rows) == 1 and rows[0].active and rows[0].node_tag == "LP-1" and rows[0].bad_rows == 1
+    assert rows[0].uploaded_by == "engineer" and rows[0].file_name == "lp1-march.csv"
     assert_close(rows[0].existing_load_kva, 50.0, rel=1e-9)
     after = svc.snapshot(demo_id)
     lp1 = after.result.panels["LP-1"]
