@@ -62,3 +62,42 @@ def test_dashboard_and_transformer_chart(live_app, artifacts_dir):  # noqa: F811
             assert errors == []
         finally:
             browser.close()
+
+
+def test_metered_upload_analysis_and_use(live_app, artifacts_dir, tmp_path):  # noqa: F811
+    """Upload a 31-day recording with one bad row: analysis and chart shown, nothing stored; then use it."""
+    from datetime import datetime, timedelta
+
+    sync_playwright, expect = _playwright()
+    base, app, pid = live_app
+    rows = ["timestamp,kVA"]
+    t = datetime(2026, 3, 1)
+    for i in range(31 * 96):
+        rows.append(f"{t:%Y-%m-%d %H:%M},{36.0 if i == 900 else 18.0 + (i % 96) / 12}")
+        t += timedelta(minutes=15)
+    rows.insert(3, "2026-03-01 00:30,n/a")  # line 4 of the file
+    csv_path = tmp_path / "lp1-meter.csv"
+    csv_path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    svc = app.state.services
+    version = svc.snapshot(pid).data_version
+
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        try:
+            page = browser.new_page(viewport={"width": 1400, "height": 1100})
+            page.set_default_timeout(15_000)
+            page.goto(f"{base}/projects/{pid}/growth/metered?node=LP-1")
+            page.set_input_files("#m-file", str(csv_path))
+            page.click("#metered-analyse")
+            expect(page.locator("#metered-analysis")).to_be_visible()
+            expect(page.locator("#metered-chart svg")).to_be_visible()
+            expect(page.locator("#bad-rows td").first).to_have_text("4")
+            expect(page.locator('[data-role="existing"]')).to_contain_text("45.0 kVA")  # 36 × 1.25
+            assert svc.snapshot(pid).data_version == version  # analysed, not stored
+            page.screenshot(path=str(artifacts_dir / "growth-metered-analysis.png"), full_page=True)
+            page.click("#metered-confirm")
+            page.wait_for_url("**/growth/nodes/LP-1")
+            expect(page.locator("#growth-node")).to_contain_text("in use")
+        finally:
+            browser.close()
+    assert svc.snapshot(pid).result.panels["LP-1"].connected_by_category["metered_existing"] == 45_000.0
