@@ -336,7 +336,7 @@ class _Local:
 class _SlotInfo:
     """Everything about a breaker position that does not depend on its load (cached per system)."""
 
-    __slots__ = ("slots", "phases", "shares", "coefs", "inv_v", "ln_phase", "ln_rot")
+    __slots__ = ("slots", "phases", "shares", "coefs", "inv_v", "ln_phase", "ln_rot", "ln_coef")
 
     def __init__(self, spec: SystemSpec, slot: int, poles: int) -> None:
         self.slots = breaker_slots(slot, poles)
@@ -346,6 +346,7 @@ class _SlotInfo:
         self.inv_v = load_amps(spec, poles, 1.0)  # amps per VA
         self.ln_phase = self.phases[0] if poles == 1 else None
         self.ln_rot = triplen_rotation(spec, self.ln_phase) if self.ln_phase is not None else 0j
+        self.ln_coef = self.coefs[0][1] if poles == 1 else 0j
 
 
 _SLOT_INFO: dict[str, dict[tuple[int, int], _SlotInfo]] = {}
@@ -368,6 +369,7 @@ _REMOVED = Status.REMOVED
 _FUTURE = Status.FUTURE
 _CONTINUOUS_DEFAULT = frozenset(c.value for c in CONTINUOUS_BY_DEFAULT)
 _DEFAULT_PF = {c.value: pf for c, pf in DEFAULT_PF.items()}
+_SIN_PHI: dict[float, float] = {}  # sin φ by power factor (few distinct values in a project)
 
 
 def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
@@ -450,18 +452,28 @@ def _own_circuits(node: _Node, include_future: bool, code_label: str) -> None:
                 agg.largest_motor = va
         elif catv == _COOLING and va > agg.largest_cooling:
             agg.largest_cooling = va
-        for p, s in si.shares:
-            phase_va[p] += va * s
         pf = c.pf
         if pf is None:
             pf = _DEFAULT_PF.get(catv, DEFAULT_PF_OTHER)
         # conj(S) = VA · (pf − j·sin φ), lagging (server.calc.loads.conj_power)
-        q = va * math.sqrt(max(0.0, 1.0 - pf * pf))
+        sin_phi = _SIN_PHI.get(pf)
+        if sin_phi is None:
+            if len(_SIN_PHI) > 4096:  # typed power factors are few; never let the memo grow unbounded
+                _SIN_PHI.clear()
+            sin_phi = _SIN_PHI[pf] = math.sqrt(max(0.0, 1.0 - pf * pf))
+        q = va * sin_phi
         s_conj = complex(va * pf, -q)
         p_w += va * pf
         q_var += q
-        for p, k in si.coefs:
-            line_i[p] += s_conj * k
+        if poles == 1:  # the common case, without the loops
+            p = si.ln_phase
+            phase_va[p] += va
+            line_i[p] += s_conj * si.ln_coef
+        else:
+            for p, s in si.shares:
+                phase_va[p] += va * s
+            for p, k in si.coefs:
+                line_i[p] += s_conj * k
         h3 = c.harmonic3_pct
         if h3 > 0.0:
             i3 = amps * h3 / 100.0
