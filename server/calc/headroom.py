@@ -39,7 +39,7 @@ from dataclasses import dataclass
 from enum import StrEnum
 
 from .loads import load_amps
-from .model import Category, Panel, Project, Status, Transformer
+from .model import Category, Circuit, Panel, Project, Status, Transformer
 from .results import FeederResult, PanelResult, ProjectResult, TransformerResult
 from .systems import SYSTEMS, SystemSpec, breaker_phases
 from .voltage_drop import voltage_drop_pct
@@ -217,7 +217,7 @@ def _upstream(
     spec: SystemSpec,
     parent: str | None,
     out: dict[str, Headroom],
-    feeding: dict[str, tuple[Panel, object]],
+    feeding: dict[str, tuple[Panel, Circuit]],
 ) -> LimitCheck | None:
     """The parent's headroom seen from this node (phase for phase, or the least of the feeding phases)."""
     if parent is None or parent not in out:
@@ -229,7 +229,7 @@ def _upstream(
     parent_phases: tuple[str, ...] = tuple(ph.kva)
     if via is not None:
         panel, circuit = via
-        parent_phases = breaker_phases(SYSTEMS[panel.system], circuit.slot, circuit.poles)  # type: ignore[attr-defined]
+        parent_phases = breaker_phases(SYSTEMS[panel.system], circuit.slot, circuit.poles)
     per_va = 1.0 / phase_va_per_amp(spec)
     same = set(spec.phases) == set(parent_phases) and len(parent_phases) == len(ph.kva)
     amps: dict[str, float] = {}
@@ -309,7 +309,7 @@ def _panel_headroom(
     pr: PanelResult,
     out: dict[str, Headroom],
     paths: dict[str, _Path],
-    feeding: dict[str, tuple[Panel, object]],
+    feeding: dict[str, tuple[Panel, Circuit]],
     vd_total: float,
     vd_feeder: float,
 ) -> Headroom:
@@ -335,7 +335,7 @@ def _transformer_headroom(
     tr: TransformerResult,
     out: dict[str, Headroom],
     paths: dict[str, _Path],
-    feeding: dict[str, tuple[Panel, object]],
+    feeding: dict[str, tuple[Panel, Circuit]],
     vd_total: float,
     vd_feeder: float,
 ) -> Headroom:
