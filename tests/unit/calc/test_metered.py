@@ -590,12 +590,19 @@ _cell = st.one_of(
     st.datetimes(min_value=datetime(2023, 3, 11), max_value=datetime(2023, 11, 6)).map(lambda t: f"{t:%Y-%m-%d %H:%M}"),
     st.datetimes(min_value=datetime(2023, 3, 11), max_value=datetime(2023, 11, 6)).map(lambda t: f"{t:%m/%d/%Y %H:%M}"),
     st.floats(allow_nan=True, allow_infinity=True).map(repr),
+    st.datetimes().map(lambda t: t.isoformat(sep=" ")),
+    st.datetimes(timezones=st.sampled_from([UTC, CHICAGO, ZoneInfo("Asia/Tokyo")])).map(lambda t: t.isoformat()),
+    st.datetimes(min_value=datetime(2023, 11, 5), max_value=datetime(2023, 11, 5, 3)).map(
+        lambda t: f"{t:%Y-%m-%d %H:%M}"
+    ),
 )
 
 
 @settings(max_examples=200, deadline=None)
 @given(
-    header=st.sampled_from(["timestamp,kW", "timestamp,kVA_A,kVA_B", "Date,Time,W", "time;kW", "timestamp,Amps,V"]),
+    header=st.sampled_from(
+        ["timestamp,kW", "timestamp,kVA_A,kVA_B", "Date,Time,W", "time;kW", "timestamp,Amps,V", "t,Amps_A,Amps_B,V_LL"]
+    ),
     rows=st.lists(st.lists(_cell, min_size=1, max_size=4), max_size=30),
     zone=st.sampled_from([None, "America/Chicago", "Europe/London"]),
     strict=st.booleans(),
