@@ -1198,6 +1198,18 @@ class Calculator:
     def result(self) -> ProjectResult:
         return self._result
 
+    def release(self) -> None:
+        """Drop the cached tree (parent ↔ child links form reference cycles), so a calculator that
+        is done with frees its memory at once instead of waiting for the cyclic garbage collector.
+        Results already returned stay valid; the calculator cannot be updated afterwards."""
+        for node in self.nodes.values():
+            node.parent = None
+            node.children = []
+        self.nodes = {}
+        self.order = []
+        self.roots = []
+        self.by_tag = []
+
     def update_panel(self, panel: Panel) -> ProjectResult:
         """Replace one panel (same tag) and recompute incrementally; identical to a full compute.
 
@@ -1285,6 +1297,7 @@ def compute_project(
     existing_load_override_va: Mapping[str, float] | None = None,
 ) -> ProjectResult:
     """Full calculation of a project (see the module docstring)."""
-    return Calculator(
-        project, include_future=include_future, existing_load_override_va=existing_load_override_va
-    ).result()
+    calc = Calculator(project, include_future=include_future, existing_load_override_va=existing_load_override_va)
+    result = calc.result()
+    calc.release()
+    return result
