@@ -963,7 +963,8 @@ def _instants(
     # Naive wall-clock times in ``tz``: instants become naive UTC datetimes.
     wall_days = _WallDays(tz)
     ordinals = list(map(datetime.toordinal, times))
-    first_day, last_day = min(ordinals), max(ordinals)
+    # The first and last readings usually bound the recording; any day outside is looked up lazily.
+    first_day, last_day = sorted((ordinals[0], ordinals[-1]))
     if last_day - first_day <= 4 * n + 400:  # a recording, not a scatter of far-apart dates
         wall_days.prefill(first_day, last_day)
     offs = list(map(wall_days.__getitem__, ordinals))
