@@ -1,7 +1,9 @@
 """The dependency every route declares: ``Depends(Require(Permission.X))``.
 
 ``Require(None)`` (:data:`BY_METHOD`) asks for ``read`` on GET/HEAD and ``edit`` on anything
-else; the app attaches it to the routers of the editing screens as a whole.  Every check also
+else; the app attaches it to the routers of the editing screens as a whole.  A route of such a
+router may declare its own ``Require(permission)``, which then replaces the default (e.g.
+``Depends(Require(Permission.READ))`` on a POST that reviewers may send).  Every check also
 verifies the CSRF token on unsafe methods: the ``X-CSRF-Token`` header (htmx sends it from
 ``hx-headers`` on ``<body>``) or the ``csrf_token`` field of a form.  The token is an HMAC of
 the browser's session token, so it changes at sign-in and cannot be guessed by another site.
@@ -42,6 +44,8 @@ class Require:
 
     async def __call__(self, request: Request) -> UserInfo | None:
         user: UserInfo | None = getattr(request.state, "user", None)
+        if self.permission is None and _declares_own(request.scope.get("route")):
+            return user  # the route's own Require decides (e.g. a POST that reviewers may send)
         needed = self.needed(request.method)
         if not allows(user.role if user else None, needed):
             if user is None:
@@ -78,6 +82,21 @@ async def check_csrf(request: Request) -> None:
         )
 
 
+def iter_routes(routes: Any) -> Any:
+    """Every route of an app, flattened through included routers.
+
+    Yields API routes (anything with ``path``, ``methods`` and ``dependant``, including the
+    effective routes FastAPI builds for included routers) and the plain routes and mounts
+    (``/docs``, ``/openapi.json``, ``/static``) as they are.
+    """
+    for route in routes:
+        nested = getattr(route, "effective_candidates", None)
+        if callable(nested):
+            yield from iter_routes(nested())
+        else:
+            yield route
+
+
 def route_requirements(route: APIRoute) -> list[Require]:
     """Every :class:`Require` a route depends on (directly or through sub-dependencies)."""
     found: list[Require] = []
@@ -92,7 +111,21 @@ def route_requirements(route: APIRoute) -> list[Require]:
     return found
 
 
+def _declares_own(route: Any) -> bool:
+    return (
+        route is not None
+        and hasattr(route, "dependant")
+        and any(r.permission is not None for r in route_requirements(route))
+    )
+
+
 def route_permission(route: APIRoute, method: str) -> Permission | None:
-    """The strictest permission a route asks for with ``method`` (None: it declares none)."""
-    needs = [r.needed(method) for r in route_requirements(route)]
+    """What a route asks for with ``method`` (None: it declares nothing).
+
+    A route's own ``Require(permission)`` wins over the router's by-method default, so a POST
+    may be opened to reviewers; several explicit ones all apply (the strictest decides).
+    """
+    reqs = route_requirements(route)
+    explicit = [r.needed(method) for r in reqs if r.permission is not None]
+    needs = explicit or [r.needed(method) for r in reqs]
     return max(needs, key=lambda p: _RANK[p]) if needs else None

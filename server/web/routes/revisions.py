@@ -96,7 +96,7 @@ def show(request: Request, pid: int, number: int, svc: ServicesDep, templates: T
             "system": p.get("system"),
             "circuits": len(p.get("circuits", [])),
             "demand_va": (results.get(p["tag"]) or {}).get("demand_va"),
-            "connected_va": (results.get(p["tag"]) or {}).get("connected_va"),
+            "connected_va": (results.get(p["tag"]) or {}).get("connected_va_total"),
         }
         for p in r.project.get("panels", [])
     ]
