@@ -168,6 +168,8 @@ def test_json_stdout_is_clean_in_a_real_process() -> None:
             "--json",
             "--objective",
             "neutral",
+            "--time-limit",
+            "1",
         ],
         capture_output=True,
         text=True,

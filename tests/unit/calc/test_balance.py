@@ -356,7 +356,7 @@ def test_demo_panels_round_trip_and_improve() -> None:
     project = load_project_file(DEMO_FILE)
     for panel in project.panels:
         for objective in Objective:
-            prop = balance_panel_in_project(project, panel.tag, BalanceOptions(objective=objective))
+            prop = balance_panel_in_project(project, panel.tag, BalanceOptions(objective=objective, time_limit_s=1.0))
             assert _valid(prop.panel) == []
             assert apply_moves(prop.panel, inverse_moves(prop.moves)) == panel
             if objective == Objective.MAX_PHASE:
@@ -715,3 +715,18 @@ def test_model_arithmetic_matches_the_engine_loads(seed: int) -> None:
         assert value == pytest.approx(engine.phase_va[phase], abs=1e-6)
     if engine.neutral_amps is not None:
         assert abs(neutral) == pytest.approx(engine.neutral_amps, abs=1e-6)
+
+
+def test_before_figures_match_the_engine() -> None:
+    """The balancer's 'before' is what ``panelwright calc`` reports (phase VA and neutral current)."""
+    from server.calc.engine import compute_project
+
+    project = load_project_file(DEMO_FILE)
+    result = compute_project(project)
+    for panel in project.panels:
+        prop = balance_panel_in_project(project, panel.tag, BalanceOptions(solver=Solver.HEURISTIC))
+        engine = result.panels[panel.tag]
+        for phase, va in engine.connected_va.items():
+            assert_close(prop.before.phase_va[phase], va, rel=1e-9, abs_=1e-6, what=f"{panel.tag} {phase}")
+        if engine.neutral_amps is not None:
+            assert_close(prop.before.neutral_amps or 0.0, engine.neutral_amps, rel=1e-9, abs_=1e-9, what=panel.tag)
