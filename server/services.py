@@ -242,6 +242,7 @@ class _Entry:
     calculator: Calculator
     result: ProjectResult
     versions: dict[str, dict[int, int]] = field(default_factory=dict)  # panel tag → slot → Circuit.version
+    archived: bool = False
 
 
 class CalcCache:
@@ -259,6 +260,11 @@ class CalcCache:
                 return None
             self._entries.move_to_end(project_id)
             return entry
+
+    def peek(self, project_id: int) -> _Entry | None:
+        """The cached entry whatever its version (the caller's write checks the version in the database)."""
+        with self._lock:
+            return self._entries.get(project_id)
 
     def put(self, project_id: int, entry: _Entry) -> None:
         if self.size <= 0:
@@ -423,7 +429,7 @@ class Services:
             s.expire_all()
         model = pf.parse_project(data, source=f"project {project_id} in the database")
         calculator = Calculator(model, existing_load_override_va=metered)
-        entry = _Entry(version, model, calculator, calculator.result(), versions)
+        entry = _Entry(version, model, calculator, calculator.result(), versions, row.archived)
         self.cache.put(project_id, entry)
         return entry
 
@@ -596,8 +602,11 @@ class Services:
         expected_version: int | None = None,
     ) -> Snapshot:
         with self._locks.of(project_id):
-            for _ in range(3):
-                snap = self.snapshot(project_id)
+            for attempt in range(3):
+                # First try on the cached version without asking the database: the conditional
+                # version bump below refuses the write if anyone wrote since, and we retry fresh.
+                cached = self.cache.peek(project_id) if attempt == 0 else None
+                snap = self._snapshot_of(project_id, cached) if cached else self.snapshot(project_id)
                 panel = snap.model.panel(tag)
                 if panel is None:
                     raise NotFound(f"project {project_id} has no panel {tag}")
@@ -616,12 +625,10 @@ class Services:
                 with self._tx() as s:
                     if not repo.bump_data_version(s, project_id=project_id, expected=snap.data_version):
                         continue
-                    panel_id = s.scalar(
-                        select(db.Panel.id).where(db.Panel.project_id == project_id, db.Panel.tag == tag)
-                    )
+                    row = repo.find_circuit(s, project_id=project_id, tag=tag, slot=slot)
+                    panel_id = row.panel_id if row is not None else repo.panel_id(s, project_id=project_id, tag=tag)
                     if panel_id is None:
                         raise NotFound(f"project {project_id} has no panel {tag}")
-                    row = repo.get_circuit(s, panel_id=panel_id, slot=slot)
                     if expected_version is not None and row is not None and row.version != expected_version:
                         raise StaleEdit.of(s, project_id, tag, row, form)  # rolls the transaction back
                     new_version: int | None = None
@@ -647,14 +654,19 @@ class Services:
             with self.sessions() as s:
                 entry = self._rebuild(s, snap.project_id)
         else:
-            entry.result = entry.calculator.update_panel(new_panel)
-            entry.model = new_model
-            entry.data_version = snap.data_version + 1
+            result = entry.calculator.update_panel(new_panel)
             panel_versions = {k: v for k, v in entry.versions.get(new_panel.tag, {}).items() if k != slot}
             if new_version is not None:
                 panel_versions[slot] = new_version
-            entry.versions = {**entry.versions, new_panel.tag: panel_versions}  # copied: older snapshots keep theirs
+            versions = {**entry.versions, new_panel.tag: panel_versions}  # copied: older snapshots keep theirs
+            # A new entry, swapped in at once: a reader never sees the new model beside the old result.
+            entry = _Entry(snap.data_version + 1, new_model, entry.calculator, result, versions, entry.archived)
+            self.cache.put(snap.project_id, entry)
         return Snapshot(snap.project_id, entry.data_version, snap.archived, entry.model, entry.result, entry.versions)
+
+    @staticmethod
+    def _snapshot_of(project_id: int, entry: _Entry) -> Snapshot:
+        return Snapshot(project_id, entry.data_version, entry.archived, entry.model, entry.result, entry.versions)
 
     # ----------------------------------------------------------------- element edits
 

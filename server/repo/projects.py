@@ -73,6 +73,20 @@ def get_transformer(session: Session, *, project_id: int, tag: str) -> Transform
     ).first()
 
 
+def panel_id(session: Session, *, project_id: int, tag: str) -> int | None:
+    return session.scalar(select(Panel.id).where(Panel.project_id == project_id, Panel.tag == tag))
+
+
+def find_circuit(session: Session, *, project_id: int, tag: str, slot: int) -> Circuit | None:
+    """The circuit at ``slot`` of panel ``tag`` in one query."""
+    stmt = (
+        select(Circuit)
+        .join(Panel, Circuit.panel_id == Panel.id)
+        .where(Panel.project_id == project_id, Panel.tag == tag, Circuit.slot == slot)
+    )
+    return session.scalars(stmt).first()
+
+
 def get_circuit(session: Session, *, panel_id: int, slot: int) -> Circuit | None:
     return session.scalars(select(Circuit).where(Circuit.panel_id == panel_id, Circuit.slot == slot)).first()
 
