@@ -69,11 +69,14 @@ def _integrity(path: Path) -> str:
         conn.close()
 
 
-def _copy(src_path: Path, dst_path: Path) -> None:
+def _copy(src_path: Path, dst_path: Path, *, standalone: bool = True) -> None:
     src = sqlite3.connect(f"file:{src_path}?mode=ro", uri=True)
     dst = sqlite3.connect(dst_path)
     try:
         src.backup(dst)
+        if standalone:
+            # One self-contained file: no -wal/-shm beside the copy (the app turns WAL back on when it opens it).
+            dst.execute("PRAGMA journal_mode=DELETE")
     finally:
         dst.close()
         src.close()
@@ -186,7 +189,10 @@ def restore_sqlite(database_url: str, backup: Path, *, force: bool = False) -> R
     if target.exists():
         kept = target.with_name(f"{target.name}.before-restore-{datetime.now(UTC).strftime('%Y%m%dT%H%M%SZ')}")
         _copy(target, kept)
-    _copy(backup, target)
+    try:
+        _copy(backup, target, standalone=False)
+    except sqlite3.OperationalError as exc:
+        raise BackupError(f"cannot write {target} ({exc}): stop `panelwright serve` first, then restore") from None
     from server.db import migrate
 
     migrate.upgrade(database_url)
