@@ -730,3 +730,25 @@ def test_before_figures_match_the_engine() -> None:
             assert_close(prop.before.phase_va[phase], va, rel=1e-9, abs_=1e-6, what=f"{panel.tag} {phase}")
         if engine.neutral_amps is not None:
             assert_close(prop.before.neutral_amps or 0.0, engine.neutral_amps, rel=1e-9, abs_=1e-9, what=panel.tag)
+
+
+def test_balance_core_imports_without_scipy() -> None:
+    """server.calc.balance is standard library only; scipy loads only when the exact solver runs."""
+    import json
+    import subprocess
+    import sys
+
+    from tests.helpers import ROOT
+
+    probe = (
+        "import json, sys\n"
+        "import server.calc.balance as b\n"
+        "p = b.Panel(tag='X', system='208Y/120 3PH 4W', spaces=6, circuits=(b.Circuit(slot=1, va=100.0),"
+        " b.Circuit(slot=2, va=900.0), b.Circuit(slot=3, va=500.0)))\n"
+        "b.balance_panel(p, b.BalanceOptions(solver=b.Solver.HEURISTIC))\n"
+        "print(json.dumps(sorted({m.split('.')[0] for m in sys.modules})))\n"
+    )
+    proc = subprocess.run([sys.executable, "-c", probe], cwd=ROOT, capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    top = set(json.loads(proc.stdout.strip().splitlines()[-1]))
+    assert not top & {"numpy", "scipy"}
