@@ -53,6 +53,7 @@ from dataclasses import dataclass
 from . import demand as _demand
 from . import faults as _faults
 from . import feeders as _feeders
+from . import tables as _tables
 from . import transformers as _xf
 from . import voltage_drop as _vd
 from .errors import Problem, ProjectFileError, SizingError
@@ -574,6 +575,7 @@ class Calculator:
             missing = sorted(set(self.nodes) - {n.tag for n in self.order})
             raise ProjectFileError([Problem("is not connected to any source (feed loop?)", t) for t in missing])
         self.by_tag = sorted(self.order, key=lambda n: n.tag)
+        self._vd_note = _tables.section("feeder_vd_note", self.code)
         self._warnings_dirty = True
         self._all_warnings: tuple[CalcWarning, ...] = ()
         for n in self.order:
@@ -730,8 +732,13 @@ class Calculator:
             )
         except SizingError as exc:
             return None, [CalcWarning(WarningCode.NO_SIZE, f"{tag} feeder: {exc}", tag, None, Severity.ERROR)]
-        # The total drop depends on everything upstream: the top-down pass decides it.
-        warnings = [w for w in fd.warnings if w.code != WarningCode.VOLTAGE_DROP_TOTAL]
+        # The total drop depends on everything upstream: the top-down pass decides it.  Every
+        # message names the element, as the engine's own warnings do.
+        warnings = [
+            w if w.message.startswith(tag) else _evolve(w, message=f"{tag} feeder: {w.message}")
+            for w in fd.warnings
+            if w.code != WarningCode.VOLTAGE_DROP_TOTAL
+        ]
         result = fd.result
         if result.ampacity_amps + 1e-9 < design_amps and not any(
             w.code == WarningCode.FEEDER_AMPACITY and w.severity != Severity.NOTE for w in warnings
@@ -1094,7 +1101,7 @@ class Calculator:
                     CalcWarning(
                         WarningCode.VOLTAGE_DROP_TOTAL,
                         f"{tag}: cumulative voltage drop {total_vd:.2f} % from the source exceeds {limit:g} % "
-                        f"(NEC 210.19(A) / 215.2(A) Informational Notes)",
+                        f"({self.code.value} {self._vd_note} recommendation for feeder and branch circuit)",
                         tag,
                     )
                 )

@@ -193,6 +193,17 @@ def test_warning_codes_where_expected(result) -> None:
     assert ranks == sorted(ranks)
 
 
+def test_every_warning_message_names_its_tag_and_slot(project) -> None:
+    data = json.loads(DATA.read_text())
+    data["panels"][2]["feeder"] = {"length_ft": 900, "size": "6"}  # feeder warnings from the sizing module too
+    res = compute_project(loads_project(json.dumps(data)))
+    assert {"vdrop-feeder", "vdrop-total"} <= {w.code.value for w in res.warnings}
+    for w in res.warnings:
+        assert w.message.startswith(w.tag), w.message
+        if w.slot is not None:
+            assert f"slot {w.slot}" in w.message
+
+
 def test_overload_sccr_vdrop_spaces_and_high_leg_warnings(project) -> None:
     data = json.loads(DATA.read_text())
     data["sources"][0]["fault_ka"] = 65
