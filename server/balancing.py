@@ -1,0 +1,358 @@
+"""Phase balancing in the panel editor: preview a proposal, apply it as one edit, undo it.
+
+Role: the service between the web routes (:mod:`server.web.routes.balance`) and the pure
+balancer (:mod:`server.calc.balance`).  Nothing here computes a load: the proposal, its
+before/after loading, bound and gap all come from :func:`server.calc.balance.balance_panel_in_project`,
+the same call ``panelwright balance`` makes, so the preview and the CLI agree.
+
+* :func:`preview` — the proposal for one panel of the stored project, with a fingerprint of the
+  panel as it was read (:func:`panel_fingerprint`).  Writes nothing.
+* :func:`rearrange` — apply a list of moves (a permutation applied at once, see
+  :mod:`server.calc.balance`) in ONE transaction: the panel must still have the fingerprint the
+  preview showed (else :class:`ArrangementChanged`, status 409, nothing written); the new panel
+  is checked with :func:`server.calc.projectfile.check_panel` before anything is written; the
+  moved circuit rows get their new slots through temporary negative slots (the database keeps
+  ``(panel_id, slot)`` unique at every statement); the project's ``data_version`` and each moved
+  circuit's ``version`` go up; and ONE audit row records the whole rearrangement (who, and for
+  each moved entry its slot before and after).  Undo is the same call with the inverse moves.
+
+Why a fingerprint of the panel and not the project's ``data_version``: a colleague editing
+another panel must not make a preview of this one unusable; the moves only need this panel's
+circuits to be what the preview saw.
+
+Moved circuits get ``version`` = (largest version in the panel) + 1, not just their own + 1, so
+a page drawn before the move that still holds the old circuit's version for that slot can never
+match the circuit now there; its edit is refused as stale (409) instead of landing on the wrong
+breaker.
+
+The audit trail's flush listener (:mod:`server.audit`) writes one row per changed ORM object;
+a rearrangement would be one row per moved circuit there, so the slot updates here are plain
+SQL statements (not seen by that listener) and the single audit row is written beside them
+with the same columns and actor (:data:`server.audit.ACTOR`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from typing import Any
+
+from sqlalchemy import insert, select, update
+
+from server import audit
+from server.calc import projectfile as pf
+from server.calc.balance import (
+    BalanceOptions,
+    BalanceProposal,
+    Move,
+    Objective,
+    apply_moves,
+    balance_panel_in_project,
+    inverse_moves,
+)
+from server.calc.errors import CalcError, Problem, ProjectFileError
+from server.calc.model import Panel, Project, ProjectInfo
+from server.db import models as db
+from server.repo import projects as repo
+from server.services import Conflict, EditRejected, NotFound, Services, Snapshot
+
+#: Audit actions (the ``action`` column holds at most 20 characters).
+ACTION_APPLY = "balance"
+ACTION_UNDO = "undo balance"
+
+#: Form fields of the options, in the order the form shows them.
+OPTION_FIELDS = ("objective", "max_moves", "keep_sides", "allow_spaces", "include_future")
+_TRUE = frozenset({"1", "on", "yes", "true"})
+
+
+class ArrangementChanged(Conflict):
+    """The panel changed between the preview and the apply (or undo); nothing was written."""
+
+    def __init__(self, tag: str, changed_by: str | None) -> None:
+        self.tag = tag
+        self.changed_by = changed_by
+        who = f" by {changed_by}" if changed_by else ""
+        super().__init__(
+            f"panel {tag} was changed{who} since this preview was made; nothing was written. "
+            "Preview again to balance what is stored now."
+        )
+
+
+# --------------------------------------------------------------------------- options and moves
+
+
+def parse_options(form: Mapping[str, Any]) -> BalanceOptions:
+    """The balancer's options from the preview form; :class:`EditRejected` keyed by field otherwise.
+
+    ``objective``: ``max-phase`` (default) or ``neutral``; ``max_moves``: blank (no cap) or a whole
+    number ≥ 0; ``keep_sides`` / ``allow_spaces``: a ticked box; ``include_future``: blank (the
+    project's setting), ``yes`` or ``no``.
+    """
+    problems: list[Problem] = []
+    text = {k: str(form.get(k) or "").strip() for k in OPTION_FIELDS}
+    objective = Objective.MAX_PHASE
+    if text["objective"]:
+        try:
+            objective = Objective(text["objective"])
+        except ValueError:
+            choices = " or ".join(o.value for o in Objective)
+            problems.append(Problem(f"{text['objective']!r} is not an objective (choose {choices})", field="objective"))
+    max_moves: int | None = None
+    if text["max_moves"]:
+        if not text["max_moves"].isdigit():
+            problems.append(Problem(f"{text['max_moves']!r} is not a whole number of 0 or more", field="max_moves"))
+        else:
+            max_moves = int(text["max_moves"])
+            if max_moves > 999:
+                problems.append(Problem("at most 999 moves (a panelboard has fewer breakers)", field="max_moves"))
+    include_future: bool | None = None
+    if text["include_future"] in ("yes", "no"):
+        include_future = text["include_future"] == "yes"
+    elif text["include_future"] not in ("", "project"):
+        problems.append(
+            Problem(f"{text['include_future']!r}: choose the project's setting, yes or no", field="include_future")
+        )
+    if problems:
+        raise EditRejected(problems, text)
+    return BalanceOptions(
+        objective=objective,
+        max_moves=max_moves,
+        keep_sides=text["keep_sides"].lower() in _TRUE,
+        allow_spaces=text["allow_spaces"].lower() in _TRUE,
+        include_future=include_future,
+    )
+
+
+def option_values(options: BalanceOptions) -> dict[str, str]:
+    """The form values that reproduce ``options`` (what the form shows after a preview)."""
+    return {
+        "objective": options.objective.value,
+        "max_moves": "" if options.max_moves is None else str(options.max_moves),
+        "keep_sides": "on" if options.keep_sides else "",
+        "allow_spaces": "on" if options.allow_spaces else "",
+        "include_future": "" if options.include_future is None else ("yes" if options.include_future else "no"),
+    }
+
+
+_MOVE = re.compile(r"^(\d{1,4}):(\d{1,4})$")
+
+
+def format_moves(moves: Sequence[Move]) -> str:
+    """Moves as the form carries them: ``"1:3 2:10"`` (first slot before : first slot after)."""
+    return " ".join(f"{m.from_slot}:{m.to_slot}" for m in moves)
+
+
+def parse_moves(text: str | None, tag: str) -> tuple[Move, ...]:
+    """The inverse of :func:`format_moves`; :class:`EditRejected` naming the bad item otherwise."""
+    items = (text or "").split()
+    if not items:
+        raise EditRejected([Problem("no moves were sent: preview again and apply from there", tag, field="moves")])
+    moves: list[Move] = []
+    for item in items:
+        m = _MOVE.match(item)
+        if m is None:
+            raise EditRejected([Problem(f"{item!r} is not a move (write FROM:TO, e.g. 3:8)", tag, field="moves")])
+        moves.append(Move(int(m.group(1)), int(m.group(2))))
+    return tuple(moves)
+
+
+def panel_fingerprint(panel: Panel) -> str:
+    """SHA-256 (hex) of the panel as the version-1 project file writes it (every field, every circuit)."""
+    data = pf.dump_project(Project(ProjectInfo(name=""), panels=(panel,)))["panels"][0]
+    return hashlib.sha256(json.dumps(data, sort_keys=True, ensure_ascii=False).encode("utf-8")).hexdigest()
+
+
+# --------------------------------------------------------------------------- preview
+
+
+@dataclass(frozen=True)
+class BalancePreview:
+    """A proposal for one panel of the stored project, and what the apply form must send back."""
+
+    snapshot: Snapshot
+    tag: str
+    current: Panel  # the panel as stored when the preview was made
+    proposal: BalanceProposal
+    fingerprint: str  # panel_fingerprint(current)
+
+    @property
+    def moves_text(self) -> str:
+        return format_moves(self.proposal.moves)
+
+
+def _panel(snap: Snapshot, tag: str) -> Panel:
+    panel = snap.model.panel(tag)
+    if panel is None:
+        raise NotFound(f"project {snap.info.number or snap.project_id} has no panel {tag}")
+    return panel
+
+
+def preview(svc: Services, project_id: int, tag: str, options: BalanceOptions) -> BalancePreview:
+    """Run the balancer on panel ``tag`` as stored now.  Writes nothing."""
+    snap = svc.snapshot(project_id)
+    current = _panel(snap, tag)
+    try:
+        proposal = balance_panel_in_project(snap.model, tag, options)
+    except ProjectFileError as exc:
+        raise EditRejected(exc.problems) from None
+    except (CalcError, ValueError) as exc:
+        raise EditRejected([Problem(f"cannot balance: {exc}", tag)]) from None
+    return BalancePreview(snap, tag, current, proposal, panel_fingerprint(current))
+
+
+# --------------------------------------------------------------------------- apply / undo
+
+
+@dataclass(frozen=True)
+class Rearranged:
+    """The outcome of an apply (or undo): the project after it, and how to undo it."""
+
+    snapshot: Snapshot
+    tag: str
+    action: str  # ACTION_APPLY or ACTION_UNDO
+    moves: tuple[Move, ...]  # what was applied
+    before: Panel
+    after: Panel
+    fingerprint: str  # of ``after``: what the undo form sends back
+
+    @property
+    def undo_moves_text(self) -> str:
+        return format_moves(inverse_moves(self.moves))
+
+    @property
+    def breakers_moved(self) -> int:
+        return sum(1 for m in self.moves if not _is_space(self.before, m.from_slot))
+
+
+def _is_space(panel: Panel, slot: int) -> bool:
+    c = panel.circuit_at(slot)
+    return c is not None and c.is_space
+
+
+def _check_movable(panel: Panel, moves: Sequence[Move]) -> None:
+    """Refuse moves the balancer itself never makes: a locked circuit or a sub-feed breaker."""
+    problems: list[Problem] = []
+    for m in moves:
+        c = panel.circuit_at(m.from_slot)
+        if c is None:
+            continue  # apply_moves names it
+        if c.locked:
+            problems.append(Problem("this circuit is locked: the balancer never moves it", panel.tag, c.slot, "slot"))
+        elif c.feeds:
+            problems.append(
+                Problem(
+                    f"this breaker feeds {c.feeds}: sub-feed breakers stay where they are", panel.tag, c.slot, "slot"
+                )
+            )
+    if problems:
+        raise EditRejected(problems)
+
+
+def _audit_key(c: Any, used: set[str]) -> str:
+    base = "space" if c.is_space else (c.description.strip() or f"{c.poles}-pole circuit")
+    key, n = base, 2
+    while key in used:
+        key, n = f"{base} ({n})", n + 1
+    used.add(key)
+    return key
+
+
+def _last_changed_by(svc: Services, project_id: int, tag: str) -> str | None:
+    with svc.sessions() as s:
+        return s.scalar(
+            select(db.AuditEvent.user_name)
+            .where(db.AuditEvent.project_id == project_id, db.AuditEvent.panel_tag == tag)
+            .order_by(db.AuditEvent.id.desc())
+            .limit(1)
+        )
+
+
+def rearrange(
+    svc: Services,
+    project_id: int,
+    tag: str,
+    moves: Sequence[Move],
+    *,
+    expected_fingerprint: str,
+    action: str = ACTION_APPLY,
+) -> Rearranged:
+    """Apply ``moves`` to panel ``tag`` as one edit with one audit row (see the module docstring).
+
+    Raises :class:`ArrangementChanged` when the stored panel no longer has
+    ``expected_fingerprint``, :class:`EditRejected` when the moves are not a valid rearrangement
+    of it (naming panel, slot and field), :class:`NotFound` for an unknown project or panel.
+    """
+    moves = tuple(moves)
+    for _attempt in range(3):
+        snap = svc.snapshot(project_id)
+        before = _panel(snap, tag)
+        if panel_fingerprint(before) != expected_fingerprint:
+            raise ArrangementChanged(tag, _last_changed_by(svc, project_id, tag))
+        _check_movable(before, moves)
+        try:
+            after = apply_moves(before, moves)  # lifts all, sets all down, then check_panel
+        except ProjectFileError as exc:
+            raise EditRejected(exc.problems) from None
+        problems: list[Problem] = []
+        pf.check_panel(after, problems)  # the engine's rules, once more on exactly what is written
+        if problems:
+            raise EditRejected(problems)
+        used: set[str] = set()
+        before_json: dict[str, int] = {}
+        after_json: dict[str, int] = {}
+        for m in moves:
+            c = before.circuit_at(m.from_slot)
+            assert c is not None  # apply_moves refused unknown slots
+            key = _audit_key(c, used)
+            before_json[key], after_json[key] = m.from_slot, m.to_slot
+        with svc.sessions() as s, s.begin():
+            if not repo.bump_data_version(s, project_id=project_id, expected=snap.data_version):
+                continue  # someone wrote meanwhile: read again (the fingerprint decides)
+            panel_id = repo.panel_id(s, project_id=project_id, tag=tag)
+            if panel_id is None:
+                raise NotFound(f"project {project_id} has no panel {tag}")
+            rows = s.execute(
+                select(db.Circuit.id, db.Circuit.slot, db.Circuit.version).where(db.Circuit.panel_id == panel_id)
+            ).all()
+            by_slot = {r.slot: r for r in rows}
+            new_version = max((r.version or 0 for r in rows), default=0) + 1
+            moved = [(by_slot[m.from_slot].id, m.to_slot) for m in moves]
+            # Two steps so (panel_id, slot) stays unique after every statement: lift, then set down.
+            for i, (cid, _to) in enumerate(moved):
+                s.execute(
+                    update(db.Circuit)
+                    .where(db.Circuit.id == cid)
+                    .values(slot=-(i + 1))
+                    .execution_options(synchronize_session=False)
+                )
+            for cid, to_slot in moved:
+                s.execute(
+                    update(db.Circuit)
+                    .where(db.Circuit.id == cid)
+                    .values(slot=to_slot, version=new_version)
+                    .execution_options(synchronize_session=False)
+                )
+            s.execute(
+                insert(db.AuditEvent),
+                [
+                    {
+                        "at": datetime.now(UTC),
+                        "user_name": audit.ACTOR.get()[:60],
+                        "project_id": project_id,
+                        "panel_tag": tag,
+                        "action": action,
+                        "target": f"panel {tag} slots"[:120],
+                        "before_json": json.dumps(before_json, sort_keys=True),
+                        "after_json": json.dumps(after_json, sort_keys=True),
+                    }
+                ],
+            )
+        svc.cache.drop(project_id)
+        new_snap = svc.snapshot(project_id)
+        stored = _panel(new_snap, tag)
+        return Rearranged(new_snap, tag, action, moves, before, stored, panel_fingerprint(stored))
+    raise Conflict("the project kept changing while this rearrangement was saved; preview again")
