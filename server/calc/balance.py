@@ -464,6 +464,7 @@ class PlacementSolution:
     starts: tuple[tuple[int, ...], ...]  # per type, the chosen first slots (len = members)
     dual_bound: float | None  # proven bound on the objective of this step (None if unknown)
     optimal: bool
+    best_value: float | None = None  # the search: best objective value it reached (``starts`` may trade some for moves)
 
 
 def build_model(
@@ -736,7 +737,7 @@ def solve_heuristic(
     cap = best_value * (1.0 + tolerance_pct / 100.0) + 1e-6 * max(1.0, best_value)
     _value, _moves, chosen = min((p for p in paths if p[0] <= cap), key=lambda p: (p[1], p[0]))
     start = _revert_pass(model, objective, tidx, list(chosen), cap, deadline)
-    return PlacementSolution(_starts_from(model, tidx, start), None, False)
+    return PlacementSolution(_starts_from(model, tidx, start), None, False, best_value)
 
 
 def _revert_pass(
@@ -971,14 +972,16 @@ class _Outcome:
 def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
     """Best objective under ``max_moves``, then the fewest moves within ``tolerance_pct`` of it.
 
-    1. Steepest descent from the present arrangement (:func:`solve_heuristic`).
-    2. For max-phase, when the result is within ``mip_gap_pct`` of :func:`phase_va_lower_bound`
-       (or, failing that, of :func:`assignment_lower_bound`) and the panel is not small, that
-       certificate is enough: stop — unless ``fewest_moves`` asks for step B below anyway.
+    1. Steepest descent from the present arrangement (:func:`solve_heuristic`): the best value
+       it reaches, and its fewest-moves state within tolerance of that value.
+    2. For max-phase, when that best value is within ``mip_gap_pct`` of
+       :func:`phase_va_lower_bound` (or, failing that, of :func:`assignment_lower_bound`) and the
+       panel is not small, that certificate is enough: stop — unless ``fewest_moves`` asks for
+       step B below anyway.
     3. Otherwise the exact solver (when importable): step A minimises the objective (to
        ``mip_gap_pct``, or to optimality at ≤ EXACT_BREAKERS breakers), step B minimises moves
-       with the objective capped at (best value) × (1 + tolerance_pct / 100).  The better of the
-       answers is kept, so the exact step never makes a proposal worse.
+       with the objective capped at (best value) × (1 + tolerance_pct / 100).  An exact answer
+       replaces the search's only when it is better, so this never makes a proposal worse.
     """
     objective = options.objective
     heur = solve_heuristic(
@@ -988,36 +991,35 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
         tolerance_pct=options.tolerance_pct,
         time_limit_s=options.time_limit_s,
     )
-    best = heur.starts
-    value = objective_value(model, best, objective)
+    chosen = heur.starts
+    best_value = heur.best_value if heur.best_value is not None else objective_value(model, chosen, objective)
     bound = phase_va_lower_bound(model) if objective == Objective.MAX_PHASE else 0.0
     small = model.total_breakers <= EXACT_BREAKERS
     name = "heuristic"
     if options.solver == Solver.HEURISTIC:
-        return _Outcome(best, bound, False, name)
+        return _Outcome(chosen, bound, False, name)
     if objective == Objective.MAX_PHASE:
-        certified = value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
+        certified = best_value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
         if not certified:
-            relaxed = assignment_lower_bound(model, value)
+            relaxed = assignment_lower_bound(model, best_value)
             if relaxed is not None:
                 bound = max(bound, relaxed)
-                certified = value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
+                certified = best_value <= bound * (1.0 + options.mip_gap_pct / 100.0) + 1e-6
     else:
-        certified = value <= NEUTRAL_SETTLED_A
+        certified = best_value <= NEUTRAL_SETTLED_A
     if certified and not small and options.solver == Solver.AUTO and not options.fewest_moves:
-        return _Outcome(best, bound, False, name)
+        return _Outcome(chosen, bound, False, name)
     try:
         from . import balance_milp as milp
     except ImportError:
         if options.solver == Solver.MILP:
             raise
-        return _Outcome(best, bound, False, name)
+        return _Outcome(chosen, bound, False, name)
     name = "heuristic+milp"
-    scale = max(1.0, bound, value)
-    # the heuristic already meets the bound, or is certified and only the moves step is wanted
-    proven = value <= bound + 1e-9 * scale or (certified and not small and options.solver == Solver.AUTO)
-    step_a = PlacementSolution((), None, proven)
-    if not proven:
+    scale = max(1.0, bound, best_value)
+    # skip step A when the search already meets the bound, or is certified and only step B is wanted
+    skip_a = best_value <= bound + 1e-9 * scale or (certified and not small and options.solver == Solver.AUTO)
+    if not skip_a:
         step_a = milp.solve(
             model,
             objective,
@@ -1033,24 +1035,24 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
                 else 0.0
             ),
         )
-    if step_a.starts:
-        value_a = objective_value(model, step_a.starts, objective)
-        if value_a < value - 1e-9 * scale:
-            best, value = step_a.starts, value_a
-    if step_a.dual_bound is not None:
-        bound = max(bound, step_a.dual_bound)
-    bound = min(bound, value)
-    cap = value * (1.0 + options.tolerance_pct / 100.0) + 1e-7 * scale
-    moves_minimal = False
-    if kept_count(model, best) == model.total_breakers:
-        moves_minimal = True
-    else:
+        if step_a.dual_bound is not None:
+            bound = max(bound, step_a.dual_bound)
+        if step_a.starts:
+            value_a = objective_value(model, step_a.starts, objective)
+            if value_a < best_value - 1e-9 * scale:
+                best_value = value_a
+                if objective_value(model, chosen, objective) > best_value * (1.0 + options.tolerance_pct / 100.0):
+                    chosen = step_a.starts
+    bound = min(bound, best_value)
+    cap = best_value * (1.0 + options.tolerance_pct / 100.0) + 1e-7 * scale
+    moves_minimal = kept_count(model, chosen) == model.total_breakers
+    if not moves_minimal:
         step_b = milp.solve(model, objective, max_moves=options.max_moves, cap=cap, time_limit_s=options.time_limit_s)
         if step_b.starts and objective_value(model, step_b.starts, objective) <= cap:
-            if kept_count(model, step_b.starts) >= kept_count(model, best):
-                best = step_b.starts
+            if kept_count(model, step_b.starts) >= kept_count(model, chosen):
+                chosen = step_b.starts
             moves_minimal = step_b.optimal
-    return _Outcome(best, bound, moves_minimal, name)
+    return _Outcome(chosen, bound, moves_minimal, name)
 
 
 # --------------------------------------------------------------------------- public entry points
