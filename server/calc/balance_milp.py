@@ -240,6 +240,10 @@ def solve(
 
 _STDOUT_LOCK = threading.Lock()
 
+#: Silence file descriptor 1 while HiGHS runs (see :func:`_quiet_stdout`).  A long-running server
+#: whose own logs go to stdout may set this False: HiGHS's stray lines then reach its log instead.
+QUIET_STDOUT = True
+
 
 @contextlib.contextmanager
 def _quiet_stdout() -> Iterator[None]:
@@ -248,6 +252,9 @@ def _quiet_stdout() -> Iterator[None]:
     HiGHS 1.12 prints some diagnostics from C++ straight to stdout even with output off; that
     would corrupt ``panelwright balance --json``.  Python-level output is flushed first.
     """
+    if not QUIET_STDOUT:
+        yield
+        return
     with _STDOUT_LOCK:
         try:
             sys.stdout.flush()
