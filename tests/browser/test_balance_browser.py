@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import pytest
 
-from server.calc.balance import balance_panel_in_project
+from server.calc.balance import BalanceOptions, balance_panel_in_project
 from tests.browser.test_panel_editor_browser import CHROMIUM, CHROMIUM_ARGS, _playwright, live_app  # noqa: F401
 
 pytestmark = pytest.mark.browser
@@ -50,6 +50,18 @@ def test_balance_preview_apply_and_undo(live_app, artifacts_dir):  # noqa: F811 
             expect(page.locator("#balance-bound [data-role=gap]")).to_be_visible()
             page.screenshot(path=str(artifacts_dir / "balance-preview.png"), full_page=True)
 
+            # Other options re-run the preview in place; Cancel closes it without saving anything.
+            page.locator("#balance-max-moves").fill("2")
+            with page.expect_response(lambda r: "/balance?" in r.url and "max_moves=2" in r.url and r.status == 200):
+                page.locator("#balance-run").click()
+            capped = balance_panel_in_project(svc.snapshot(pid).model, "LP-1", BalanceOptions(max_moves=2))
+            expect(page.locator("#board-current td.ckt.moved")).to_have_count(len(capped.moves))
+            page.locator("#balance-cancel").click()
+            expect(page.locator("#balance-panel")).to_have_count(0)
+            assert svc.export_file(pid) == original
+            page.get_by_text("Balance phases", exact=True).click()
+            expect(page.locator("#board-current td.ckt.moved")).to_have_count(len(expected.moves))
+
             with page.expect_response(lambda r: r.url.endswith("/balance/apply") and r.status == 200):
                 page.locator("#balance-apply").click()
             expect(page.locator("#balance-message")).to_contain_text("breakers moved")
@@ -68,6 +80,9 @@ def test_balance_preview_apply_and_undo(live_app, artifacts_dir):  # noqa: F811 
             for ph, text in before_kva.items():
                 expect(page.locator(f'#phase-totals td[data-role="phase-kva"][data-phase="{ph}"]')).to_have_text(text)
             assert svc.export_file(pid) == original
+            page.locator("#balance-close").click()
+            expect(page.locator("#balance-panel")).to_have_count(0)
+            assert page.evaluate("window.__stillHere") == "yes"
             assert not errors, errors
         finally:
             browser.close()
