@@ -82,6 +82,7 @@ import time
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from enum import StrEnum
+from types import ModuleType
 
 from . import loads
 from .errors import Problem, ProjectFileError
@@ -967,6 +968,7 @@ class _Outcome:
     bound: float  # proven lower bound on the objective (max-phase VA or neutral A)
     moves_minimal: bool  # the fewest moves among arrangements within tolerance, proven by the solver
     solver: str
+    note: str = ""
 
 
 def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
@@ -1015,6 +1017,27 @@ def _solve(model: PlacementModel, options: BalanceOptions) -> _Outcome:
         if options.solver == Solver.MILP:
             raise
         return _Outcome(chosen, bound, False, name)
+    try:
+        return _solve_exact(milp, model, options, chosen, best_value, bound, certified, small)
+    except (ArithmeticError, RuntimeError, ValueError, MemoryError) as exc:
+        # the search's answer stands on its own; say why the exact step is missing
+        return _Outcome(
+            chosen, bound, False, name, f"exact solver unavailable for this panel ({exc}); search result shown"
+        )
+
+
+def _solve_exact(
+    milp: ModuleType,
+    model: PlacementModel,
+    options: BalanceOptions,
+    chosen: tuple[tuple[int, ...], ...],
+    best_value: float,
+    bound: float,
+    certified: bool,
+    small: bool,
+) -> _Outcome:
+    """Steps A and B of :func:`_solve` on the exact solver."""
+    objective = options.objective
     name = "heuristic+milp"
     scale = max(1.0, bound, best_value)
     # skip step A when the search already meets the bound, or is certified and only step B is wanted
@@ -1095,6 +1118,8 @@ def balance_panel(
         notes.append("sub-feed loads not given are taken as 0 VA")
 
     outcome = _solve(model, options)
+    if outcome.note:
+        notes.append(outcome.note)
     moves = _realise(panel, model, outcome.starts)
     proposed = apply_moves(panel, moves)
     before = panel_loading(panel, include_future=future, feeds_va=feeds)
@@ -1299,7 +1324,8 @@ def balance_transformer(
     phases and keeps the phase sequence.  A high-leg panel cannot be rotated (its high leg is
     fixed by the transformer's tapped winding), nor a single-phase one.
 
-    Steps: (1) balance inside each panel on the secondary (the options apply per panel); (2)
+    Steps: (1) balance inside each panel on the secondary, sub-panels before the panels feeding
+    them (the options apply per panel); (2)
     choose, for each rotatable panel, the absolute rotation minimising the transformer's largest
     phase VA (exhaustive over 3^k for k ≤ 10 rotatable panels).  Each panel's feeder rotation is
     its absolute rotation minus its feeding panel's.
@@ -1317,12 +1343,16 @@ def balance_transformer(
 
     proposals: list[BalanceProposal] = []
     current = project
-    for panel, _parent in members:
-        prop = balance_panel_in_project(current, panel.tag, options)
-        proposals.append(prop)
-        from .projectfile import replace_panel
+    from .projectfile import replace_panel
 
+    # downstream panels first, so a distribution panel is balanced against what its (already
+    # balanced) sub-panels present; proposals are then listed from the transformer down
+    by_tag: dict[str, BalanceProposal] = {}
+    for panel, _parent in reversed(members):
+        prop = balance_panel_in_project(current, panel.tag, options)
+        by_tag[panel.tag] = prop
         current = replace_panel(current, prop.panel)
+    proposals.extend(by_tag[panel.tag] for panel, _parent in members)
 
     phases = spec.phases if spec else ("A",)
     before_loads = [_own_phase_va(project, p, future) for p, _ in members]

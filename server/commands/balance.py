@@ -66,7 +66,7 @@ OBJECTIVE_WORDS = {
     type=click.FloatRange(min=0.0, max=100.0),
     default=0.0,
     show_default=True,
-    help="Fewest moves among arrangements within this %% of the best found.",
+    help="Fewest moves among arrangements within this % of the best found.",
 )
 @click.option(
     "--fewest-moves",
