@@ -87,19 +87,48 @@ def cache_key(html: str) -> str:
 
 
 class SheetCache:
-    """Rendered sheet PDFs on disk, one file per content hash (written atomically)."""
+    """Rendered sheet PDFs on disk, one file per content hash (written atomically).
 
-    def __init__(self, directory: str | os.PathLike[str]) -> None:
+    A hit refreshes the file's time; :meth:`prune` drops the least recently used files beyond
+    ``max_files`` (a sheet is some 30–60 KB, so the default keeps the cache near 250 MB).
+    """
+
+    def __init__(self, directory: str | os.PathLike[str], *, max_files: int = 5000) -> None:
         self.directory = Path(directory)
+        self.max_files = max_files
 
     def _path(self, key: str) -> Path:
         return self.directory / key[:2] / f"{key}.pdf"
 
     def get(self, key: str) -> bytes | None:
+        path = self._path(key)
         try:
-            return self._path(key).read_bytes()
+            data = path.read_bytes()
+            os.utime(path)
+            return data
         except OSError:
             return None
+
+    def prune(self) -> int:
+        """Remove the least recently used sheets beyond ``max_files``; returns how many went."""
+        try:
+            files = [p for p in self.directory.glob("??/*.pdf")]
+        except OSError:
+            return 0
+        if len(files) <= self.max_files:
+            return 0
+        dated = []
+        for p in files:
+            try:
+                dated.append((p.stat().st_mtime, p))
+            except OSError:
+                continue
+        dated.sort()
+        removed = 0
+        for _, p in dated[: len(dated) - self.max_files]:
+            p.unlink(missing_ok=True)
+            removed += 1
+        return removed
 
     def put(self, key: str, pdf: bytes) -> None:
         path = self._path(key)
@@ -215,6 +244,8 @@ def render_pdfs(
                 if out[i] is None:
                     finish(i, html_to_pdf(htmls[i]))
     stats.rendered = len(todo)
+    if cache is not None and todo:
+        cache.prune()
     stats.render_s = time.perf_counter() - t0
     return [b for b in out if b is not None]
 

@@ -72,9 +72,9 @@ def test_previous_and_revision_mark_changes(tmp_path: Path, cache: Path):
     pages = panel_pages(read_pages(out.read_bytes()))
     lp1_page, lp2_page = pages["LP-1"][0], pages["LP-2"][0]
     assert any(c["text"] == MARKER for c in lp1_page.chars)
-    assert "Bid set" in lp1_page.flat and "2026-12-09" in lp1_page.flat
+    assert "Bid set" in lp1_page.strip and "2026-12-09" in lp1_page.strip
     assert not any(c["text"] == MARKER for c in lp2_page.chars)
-    assert "Bid set" not in lp2_page.flat  # LP-2 did not change in revision 3
+    assert "Bid set" not in lp2_page.strip  # LP-2 did not change in revision 3
 
 
 @pytest.mark.parametrize(
@@ -121,7 +121,7 @@ def test_stored_project_by_number(tmp_path: Path, cache: Path, monkeypatch: pyte
     r = _run([project.project.number, "--out", str(out), "--sheets", "LP-1"])
     assert r.exit_code == 0, r.output
     page = read_pages(out.read_bytes())[0]
-    assert "Issued for permit" in page.flat  # the stored revision 1 is the one printed
-    assert "DRAFT" not in page.flat
+    assert "Issued for permit" in page.strip  # the stored revision 1 is the one printed
+    assert "DRAFT" not in page.strip
     r = CliRunner().invoke(command, ["99-999", "--out", str(out)])
     assert r.exit_code == 2 and "no project with that number" in r.output

@@ -11,6 +11,9 @@ import pdfplumber
 from server.pdf.sheets import PAPERS
 
 MARKER = "△"
+#: Word gap for text extraction: the sheets use a narrow face at 6–8 pt, whose word spaces are
+#: narrower than pdfplumber's default 3 pt tolerance.
+X_TOLERANCE = 1.2
 
 
 @dataclass
@@ -22,6 +25,7 @@ class PageText:
     words: list[dict]
     chars: list[dict]
     body: str  # text of the sheet body only (inside the margins, without the title block)
+    strip: str  # text of the title-block strip (right edge landscape, bottom edge portrait)
 
     @property
     def flat(self) -> str:
@@ -39,13 +43,24 @@ def read_pages(pdf: bytes, paper: str = "tabloid-landscape") -> list[PageText]:
                     i,
                     float(page.width),
                     float(page.height),
-                    page.extract_text() or "",
-                    page.extract_words(extra_attrs=["size"]),
+                    page.extract_text(x_tolerance=X_TOLERANCE) or "",
+                    page.extract_words(x_tolerance=X_TOLERANCE, extra_attrs=["size"]),
                     list(page.chars),
-                    page.crop(box, strict=False).extract_text() or "",
+                    page.crop(box, strict=False).extract_text(x_tolerance=X_TOLERANCE) or "",
+                    page.crop(_strip_box(paper, float(page.width), float(page.height)), strict=False).extract_text(
+                        x_tolerance=X_TOLERANCE
+                    )
+                    or "",
                 )
             )
     return out
+
+
+def _strip_box(paper: str, width: float, height: float) -> tuple[float, float, float, float]:
+    x0, top, x1, bottom = content_box_pt(paper)
+    if PAPERS[paper].landscape:
+        return x1 + 1, 0, width, height
+    return 0, bottom + 1, width, height
 
 
 def panel_pages(pages: list[PageText]) -> dict[str, list[PageText]]:

@@ -104,3 +104,20 @@ def test_printed_values_use_the_template_formats():
     values = printed_values(project, result)["PA"]
     assert values["demand_va"] == f"{round(r.demand_va):,}"
     assert values["fault_ka"] == f"{r.fault_ka:,.1f} kA"
+
+
+def test_sheet_cache_round_trip_and_prune(tmp_path):
+    import os
+    import time
+
+    from server.pdf.render import SheetCache, cache_key
+
+    cache = SheetCache(tmp_path, max_files=2)
+    keys = [cache_key(f"<p>{i}</p>") for i in range(3)]
+    assert len(set(keys)) == 3
+    for i, k in enumerate(keys):
+        cache.put(k, f"%PDF-{i}".encode())
+        os.utime(cache._path(k), (time.time() - 100 + i, time.time() - 100 + i))
+    assert cache.get(keys[0]) == b"%PDF-0"  # a hit makes it the most recent
+    assert cache.prune() == 1
+    assert cache.get(keys[1]) is None and cache.get(keys[0]) == b"%PDF-0" and cache.get(keys[2]) == b"%PDF-2"
