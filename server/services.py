@@ -433,6 +433,17 @@ class Services:
         self.cache.put(project_id, entry)
         return entry
 
+    def _entry_in(self, s: Session, project_id: int, *, version: int) -> _Entry:
+        """An entry from the rows this transaction sees, labelled ``version`` (called holding the write lock)."""
+        row = repo.load_project_tree(s, project_id=project_id)
+        if row is None:
+            raise NotFound(f"project {project_id} does not exist")
+        versions = {p.tag: {c.slot: c.version for c in p.circuits} for p in row.panels}
+        metered = metered_repo.active_overrides_va(s, project_id=project_id)  # NEC 220.87 existing loads
+        model = pf.parse_project(project_file(row), source=f"project {project_id} in the database")
+        calculator = Calculator(model, existing_load_override_va=metered)
+        return _Entry(version, model, calculator, calculator.result(), versions, row.archived)
+
     def export_file(self, project_id: int) -> dict[str, Any]:
         """The canonical version-1 file of a project."""
         return pf.dump_project(self.snapshot(project_id).model)
@@ -481,12 +492,15 @@ class Services:
         """Replace a project's whole content with a version-1 file (the API's PUT)."""
         return self._write(project_id, lambda _old: copy.deepcopy(dict(data)))
 
-    def update_settings(self, project_id: int, form: Mapping[str, Any]) -> Snapshot:
+    def update_settings(
+        self, project_id: int, form: Mapping[str, Any], *, expected_version: str | None = None
+    ) -> Snapshot:
         values = {k: v for k, v in blank_to_none(form).items() if k in _INFO_FIELDS}
         if "include_future" not in values:
             values["include_future"] = False  # an unticked box sends nothing
 
         def build(data: dict[str, Any]) -> dict[str, Any]:
+            self._check_form_version(project_id, data["project"], expected_version, "project", "The project", form)
             data["project"].update(values)
             return data
 
@@ -514,24 +528,31 @@ class Services:
         values: Mapping[str, Any] | None = None,
         field_prefix: str = "",
     ) -> Snapshot:
-        """Read the file, let ``build`` change it, validate the whole project, then write it at once."""
+        """Read the file, let ``build`` change it, validate the whole project, then write it at once.
+
+        The transaction first claims the next ``data_version`` (which takes the project's write
+        lock until commit), so the file is read, changed and written with nobody writing between.
+        """
         with self._locks.of(project_id):
-            for _ in range(3):
-                snap = self.snapshot(project_id)
-                data = build(pf.dump_project(snap.model))
+            cached = self.cache.peek(project_id)
+            with self._tx() as s:
+                claimed = repo.claim_next_version(s, project_id=project_id)
+                if claimed is None:
+                    raise NotFound(f"project {project_id} does not exist")
+                row = repo.load_project_tree(s, project_id=project_id)
+                assert row is not None
+                if cached is not None and cached.data_version == claimed - 1:
+                    before = cached.model
+                else:
+                    before = pf.parse_project(project_file(row), source=f"project {project_id} in the database")
+                data = build(pf.dump_project(before))
                 try:
                     model = pf.parse_project(data)
-                except ProjectFileError as exc:
+                except ProjectFileError as exc:  # rolls the transaction back, version claim included
                     raise EditRejected(_strip_prefix(exc.problems, field_prefix), values) from None
-                with self._tx() as s:
-                    if not repo.bump_data_version(s, project_id=project_id, expected=snap.data_version):
-                        continue
-                    row = repo.load_project_tree(s, project_id=project_id)
-                    assert row is not None
-                    _sync_project(s, row, model)
-                self.cache.drop(project_id)
-                return self.snapshot(project_id)
-        raise Conflict("the project kept changing while this edit was saved; reload and try again")
+                _sync_project(s, row, model)
+            self.cache.drop(project_id)
+            return self.snapshot(project_id)
 
     # ----------------------------------------------------------------- circuit edits (incremental)
 
@@ -602,11 +623,19 @@ class Services:
         expected_version: int | None = None,
     ) -> Snapshot:
         with self._locks.of(project_id):
-            for attempt in range(3):
-                # First try on the cached version without asking the database: the conditional
-                # version bump below refuses the write if anyone wrote since, and we retry fresh.
-                cached = self.cache.peek(project_id) if attempt == 0 else None
-                snap = self._snapshot_of(project_id, cached) if cached else self.snapshot(project_id)
+            cached = self.cache.peek(project_id)
+            # Claiming the next data_version first takes the project's write lock until commit:
+            # edits from other threads or processes queue there instead of failing.
+            with self._tx() as s:
+                claimed = repo.claim_next_version(s, project_id=project_id)
+                if claimed is None:
+                    raise NotFound(f"project {project_id} does not exist")
+                if cached is not None and cached.data_version == claimed - 1:
+                    entry = cached  # nobody wrote since the cache was made: edit on top of it
+                else:
+                    entry = self._entry_in(s, project_id, version=claimed - 1)
+                    self.cache.put(project_id, entry)
+                snap = self._snapshot_of(project_id, entry)
                 panel = snap.model.panel(tag)
                 if panel is None:
                     raise NotFound(f"project {project_id} has no panel {tag}")
@@ -621,29 +650,25 @@ class Services:
                     pf.check_topology(new_model, problems)
                 problems = [p for p in problems if p.tag == tag]  # other panels are unchanged
                 if problems:
-                    raise EditRejected(problems, form)
-                with self._tx() as s:
-                    if not repo.bump_data_version(s, project_id=project_id, expected=snap.data_version):
-                        continue
-                    row = repo.find_circuit(s, project_id=project_id, tag=tag, slot=slot)
-                    panel_id = row.panel_id if row is not None else repo.panel_id(s, project_id=project_id, tag=tag)
-                    if panel_id is None:
-                        raise NotFound(f"project {project_id} has no panel {tag}")
-                    if expected_version is not None and row is not None and row.version != expected_version:
-                        raise StaleEdit.of(s, project_id, tag, row, form)  # rolls the transaction back
-                    new_version: int | None = None
-                    if circuit is None:
-                        if row is not None:
-                            s.delete(row)
-                    else:
-                        if row is None:
-                            row = db.Circuit(panel_id=panel_id, slot=slot, version=1)
-                            s.add(row)
-                        _apply_circuit(row, circuit)
-                        s.flush()
-                        new_version = row.version
-                return self._advance(snap, new_model, new_panel, slot, new_version)
-        raise Conflict("the project kept changing while this edit was saved; reload and try again")
+                    raise EditRejected(problems, form)  # rolls the transaction back, version claim included
+                row = repo.find_circuit(s, project_id=project_id, tag=tag, slot=slot)
+                panel_id = row.panel_id if row is not None else repo.panel_id(s, project_id=project_id, tag=tag)
+                if panel_id is None:
+                    raise NotFound(f"project {project_id} has no panel {tag}")
+                if expected_version is not None and row is not None and row.version != expected_version:
+                    raise StaleEdit.of(s, project_id, tag, row, form)  # rolls the transaction back
+                new_version: int | None = None
+                if circuit is None:
+                    if row is not None:
+                        s.delete(row)
+                else:
+                    if row is None:
+                        row = db.Circuit(panel_id=panel_id, slot=slot, version=1)
+                        s.add(row)
+                    _apply_circuit(row, circuit)
+                    s.flush()
+                    new_version = row.version
+            return self._advance(snap, new_model, new_panel, slot, new_version)
 
     def _advance(
         self, snap: Snapshot, new_model: Project, new_panel: Panel, slot: int, new_version: int | None
@@ -670,31 +695,60 @@ class Services:
 
     # ----------------------------------------------------------------- element edits
 
-    def update_panel(self, project_id: int, tag: str, form: Mapping[str, Any]) -> Snapshot:
+    def update_panel(
+        self, project_id: int, tag: str, form: Mapping[str, Any], *, expected_version: str | None = None
+    ) -> Snapshot:
         values = blank_to_none(form)
         top = {k: values.get(k) for k in PANEL_FORM_FIELDS if k in form}
         feeder = {k: values.get(f"feeder_{k}") for k in FEEDER_FORM_FIELDS if f"feeder_{k}" in form}
 
         def build(data: dict[str, Any]) -> dict[str, Any]:
             p = _find(data["panels"], tag, "panel")
+            self._check_form_version(project_id, p, expected_version, f"panel {tag}", f"Panel {tag}", form)
             p.update(top)
             p["feeder"].update(feeder)
             return data
 
         return self._write(project_id, build, values=form, field_prefix="")
 
-    def update_transformer(self, project_id: int, tag: str, form: Mapping[str, Any]) -> Snapshot:
+    def update_transformer(
+        self, project_id: int, tag: str, form: Mapping[str, Any], *, expected_version: str | None = None
+    ) -> Snapshot:
         values = blank_to_none(form)
         top = {k: values.get(k) for k in TRANSFORMER_FORM_FIELDS if k in form}
         feeder = {k: values.get(f"feeder_{k}") for k in FEEDER_FORM_FIELDS if f"feeder_{k}" in form}
 
         def build(data: dict[str, Any]) -> dict[str, Any]:
             t = _find(data["transformers"], tag, "transformer")
+            self._check_form_version(project_id, t, expected_version, f"transformer {tag}", f"Transformer {tag}", form)
             t.update(top)
             t["feeder"].update(feeder)
             return data
 
         return self._write(project_id, build, values=form)
+
+    def _check_form_version(
+        self,
+        project_id: int,
+        element: dict[str, Any],
+        expected: str | None,
+        target: str,
+        label: str,
+        typed: Mapping[str, Any],
+    ) -> None:
+        """Refuse (StaleEdit) a form based on another content version of ``element`` (see server.versions)."""
+        from server import versions
+
+        if not expected or versions.of_plain(element) == expected:
+            return
+        with self.sessions() as s:
+            stmt = select(db.AuditEvent.user_name).where(db.AuditEvent.project_id == project_id)
+            if target != "project":
+                stmt = stmt.where(db.AuditEvent.target == target)
+            else:
+                stmt = stmt.where(db.AuditEvent.target.like("project %"))
+            who = s.scalar(stmt.order_by(db.AuditEvent.id.desc()).limit(1))
+        raise StaleEdit(label, versions.flat(element), 0, who or "someone else", typed)
 
     # ----------------------------------------------------------------- tree edits
 

@@ -52,6 +52,22 @@ def data_version(session: Session, *, project_id: int) -> int | None:
     return session.scalar(select(Project.data_version).where(Project.id == project_id))
 
 
+def claim_next_version(session: Session, *, project_id: int) -> int | None:
+    """Add one to ``data_version`` and return the new value (None: no such project).
+
+    The UPDATE takes the project's write lock (a row lock on PostgreSQL, the database write
+    lock on SQLite) until the transaction ends, so concurrent writers queue instead of failing.
+    """
+    stmt = (
+        update(Project)
+        .where(Project.id == project_id)
+        .values(data_version=Project.data_version + 1, updated_at=utcnow())
+        .returning(Project.data_version)
+        .execution_options(synchronize_session=False)
+    )
+    return session.execute(stmt).scalar()
+
+
 def bump_data_version(session: Session, *, project_id: int, expected: int) -> bool:
     """Move ``data_version`` from ``expected`` to ``expected + 1``; False if another writer got there first."""
     result = session.execute(

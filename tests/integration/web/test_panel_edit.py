@@ -129,3 +129,35 @@ def test_panel_header_edit_and_its_validation(client, demo_id):
     assert r.status_code == 303
     lp1 = next(p for p in client.get(f"/api/projects/{demo_id}").json()["panels"] if p["tag"] == "LP-1")
     assert (lp1["bus_amps"], lp1["location"], lp1["feeder"]["length_ft"]) == (400, "Room 9", 80)
+
+
+def test_concurrent_edits_all_land_and_the_cache_matches_a_full_recompute(app, demo_id, demo_data):
+    import threading
+
+    from server.services import Services
+
+    svc = app.state.services
+    # A second service object stands for another server process on the same database.
+    other = Services(svc.sessions, cache_size=4)
+    lp1 = next(p for p in demo_data["panels"] if p["tag"] == "LP-1")
+    slots = [c["slot"] for c in lp1["circuits"] if c.get("feeds") is None and c["poles"] == 1 and c["va"]][:4]
+    errors: list[BaseException] = []
+
+    def work(service, slot: int) -> None:
+        try:
+            for i in range(5):
+                service.edit_circuit(demo_id, "LP-1", slot, {"va": str(1000 + 10 * slot + i)})
+        except BaseException as exc:  # noqa: BLE001 - reported below
+            errors.append(exc)
+
+    threads = [threading.Thread(target=work, args=(svc if n % 2 else other, s)) for n, s in enumerate(slots)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(timeout=120)
+    assert not errors, errors
+    stored = {c.slot: c.va for c in svc.snapshot(demo_id).model.panel("LP-1").circuits}
+    assert all(stored[s] == 1000 + 10 * s + 4 for s in slots)
+    cached = svc.snapshot(demo_id).result.to_json()
+    svc.cache.drop(demo_id)
+    assert svc.snapshot(demo_id).result.to_json() == cached
