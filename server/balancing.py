@@ -35,9 +35,10 @@ from __future__ import annotations
 
 import hashlib
 import json
+import logging
 import re
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 from typing import Any
 
@@ -59,6 +60,8 @@ from server.calc.model import Panel, Project, ProjectInfo
 from server.db import models as db
 from server.repo import projects as repo
 from server.services import Conflict, EditRejected, NotFound, Services, Snapshot
+
+log = logging.getLogger("panelwright.balancing")
 
 #: Audit actions (the ``action`` column holds at most 20 characters).
 ACTION_APPLY = "balance"
@@ -271,6 +274,38 @@ def _last_changed_by(svc: Services, project_id: int, tag: str) -> str | None:
         )
 
 
+def _advance_cache(svc: Services, snap: Snapshot, after: Panel, versions: dict[int, int]) -> None:
+    """Bring the cached calculator to the version just written with an incremental recompute.
+
+    Why: dropping the cache would recompute the whole project on the next read (seconds on a
+    500-panel project); ``Calculator.update_panel`` recomputes this panel and its ancestors only
+    and is identical to a full compute.  The write just moved ``data_version`` from
+    ``snap.data_version`` by one, so the entry cached at that version is the true predecessor;
+    anything else (no entry, another version) is dropped and rebuilt on the next read.
+    """
+    entry = svc.cache.get(snap.project_id, snap.data_version)
+    if entry is None:
+        svc.cache.drop(snap.project_id)
+        return
+    try:
+        result = entry.calculator.update_panel(after)
+    except Exception:  # the write is committed: a failed shortcut must not become an error page
+        log.exception("incremental recompute after rearranging %s failed; rebuilding on the next read", after.tag)
+        svc.cache.drop(snap.project_id)
+        return
+    # A new entry swapped in at once: a reader never sees the new model beside the old result.
+    svc.cache.put(
+        snap.project_id,
+        replace(
+            entry,
+            data_version=snap.data_version + 1,
+            model=pf.replace_panel(entry.model, after),
+            result=result,
+            versions={**entry.versions, after.tag: versions},
+        ),
+    )
+
+
 def rearrange(
     svc: Services,
     project_id: int,
@@ -297,6 +332,8 @@ def rearrange(
             after = apply_moves(before, moves)  # lifts all, sets all down, then check_panel
         except ProjectFileError as exc:
             raise EditRejected(exc.problems) from None
+        # In slot order, as the rows are read back (so the cached model and a rebuilt one agree).
+        after = replace(after, circuits=tuple(sorted(after.circuits, key=lambda c: c.slot)))
         problems: list[Problem] = []
         pf.check_panel(after, problems)  # the engine's rules, once more on exactly what is written
         if problems:
@@ -351,7 +388,9 @@ def rearrange(
                     }
                 ],
             )
-        svc.cache.drop(project_id)
+            versions = {r.slot: r.version for r in rows if r.slot not in {m.from_slot for m in moves}}
+            versions.update({m.to_slot: new_version for m in moves})
+        _advance_cache(svc, snap, after, versions)
         new_snap = svc.snapshot(project_id)
         stored = _panel(new_snap, tag)
         return Rearranged(new_snap, tag, action, moves, before, stored, panel_fingerprint(stored))

@@ -18,6 +18,7 @@ from sqlalchemy import func, select
 from server import audit
 from server.commands import balance as balance_cmd
 from server.db import models as db
+from server.repo import projects as repo
 from tests.helpers import DEMO_FILE, assert_close
 from tests.integration.web.conftest import htmx, sign_in
 from tests.integration.web.html import parse
@@ -351,3 +352,26 @@ def test_panel_page_offers_the_balance_action(client, demo_id):
 def test_unknown_panel_is_named(client, demo_id):
     r = client.get(f"/projects/{demo_id}/panels/NOPE/balance", headers=htmx())
     assert r.status_code == 404 and "NOPE" in r.text
+
+
+def test_results_after_apply_and_undo_equal_a_full_recompute(app, client, demo_id):
+    svc = app.state.services
+    applied = parse(
+        client.post(
+            _url(demo_id, "apply"), data=_form(_preview(client, demo_id), "balance-apply-form"), headers=htmx()
+        ).text
+    )
+    for step in ("apply", "undo"):
+        with svc.sessions() as s:
+            version = repo.data_version(s, project_id=demo_id)
+        assert svc.cache.get(demo_id, version) is not None, f"{step} did not bring the cached results up to date"
+        cached = svc.snapshot(demo_id)  # brought up to date incrementally by the write
+        svc.cache.drop(demo_id)
+        full = svc.snapshot(demo_id)  # rebuilt from the rows
+        assert cached.data_version == full.data_version
+        assert json.dumps(cached.result.to_json(), sort_keys=True) == json.dumps(full.result.to_json(), sort_keys=True)
+        assert dict(cached.circuit_versions[TAG]) == dict(full.circuit_versions[TAG]), step
+        assert cached.model == full.model, step
+        if step == "apply":
+            r = client.post(_url(demo_id, "undo"), data=_form(applied, "balance-undo-form"), headers=htmx())
+            assert r.status_code == 200
