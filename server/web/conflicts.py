@@ -99,3 +99,25 @@ def conflict_response(
         request=request, ctx=ctx, exc=exc, picks=picks, slot=slot, version=exc.version
     )
     return HTMLResponse(bytes(base.body) + notice.encode("utf-8"), status_code=409)
+
+
+def form_conflict_message(exc: StaleEdit) -> str:
+    """The notice of a whole-element form (panel header, transformer, settings) refused with 409.
+
+    The form is shown again with the user's values kept and the version now stored, so saving
+    again puts the user's values over the other person's (keep mine), and reloading the page
+    shows theirs (use theirs).
+    """
+    differ = []
+    for name, value in exc.current.items():
+        if name not in exc.typed:
+            continue
+        theirs = _shown(name, value)
+        yours = str(exc.typed.get(name) or "").strip()
+        if theirs != yours:
+            differ.append(f"{name}: {theirs or '(empty)'}")
+    stored = "; ".join(differ) if differ else "(no difference in the fields of this form)"
+    return (
+        f"{exc.target} was changed by {exc.changed_by} while you were editing; nothing was saved. "
+        f"Stored now: {stored}. Your values are kept below: save again to keep yours, or reload the page to take theirs."
+    )

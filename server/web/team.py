@@ -16,6 +16,7 @@ from server.auth.permissions import BY_METHOD
 from server.auth.ratelimit import LoginLimiter
 from server.config import Settings
 from server.presence import Presence
+from server.versions import content_version
 
 #: The rule attached to routers that do not declare one per route (see server.auth.permissions).
 DEFAULT_RULE = [Depends(BY_METHOD)]
@@ -36,6 +37,7 @@ def install_team(app: FastAPI, settings: Settings) -> None:
     )
     app.state.auth = config
     app.state.presence = Presence()
+    app.state.templates.env.globals["content_version"] = content_version  # hidden "version" of whole-element forms
     app.add_middleware(AuthMiddleware, config=config)
     for module in (auth, users, history, revisions, presence):
         app.include_router(module.router)

@@ -12,7 +12,7 @@ from fastapi import APIRouter, Request
 from fastapi.responses import RedirectResponse, Response
 
 from server.services import CIRCUIT_FORM_FIELDS, EditRejected, Snapshot, StaleEdit
-from server.web.conflicts import conflict_response, expected_version
+from server.web.conflicts import conflict_response, expected_version, form_conflict_message
 from server.web.deps import FormDep, HtmxDep, ServicesDep, TemplatesDep
 from server.web.views import PanelContext, SideCell, panel_context
 
@@ -33,7 +33,14 @@ def update_panel(
     request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: FormDep
 ) -> Response:
     try:
-        svc.update_panel(pid, tag, form)
+        svc.update_panel(pid, tag, form, expected_version=form.get("version") or None)
+    except StaleEdit as exc:  # someone saved this panel since the form was drawn: 409, typed values kept
+        ctx = panel_context(
+            _checked(svc.snapshot(pid), tag), tag, header_values=form, header_errors={"": form_conflict_message(exc)}
+        )
+        return templates.TemplateResponse(
+            request, "panels/detail.html", {"ctx": ctx, "page": ctx.page}, status_code=409
+        )
     except EditRejected as exc:
         ctx = panel_context(_checked(svc.snapshot(pid), tag), tag, header_values=form, header_errors=_panel_errors(exc))
         return templates.TemplateResponse(

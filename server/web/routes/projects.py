@@ -7,7 +7,9 @@ import json
 from fastapi import APIRouter, Request
 from fastapi.responses import RedirectResponse, Response
 
-from server.services import EditRejected
+from server.services import EditRejected, StaleEdit
+from server.versions import content_version
+from server.web.conflicts import form_conflict_message
 from server.web.deps import FormDep, ServicesDep, TemplatesDep
 from server.web.views import Page, ProjectListContext, SettingsContext, page, settings_values
 
@@ -83,13 +85,25 @@ def show_settings(
 ) -> Response:
     snap = svc.snapshot(pid)
     ctx = SettingsContext(page(snap, "Project settings", "settings"), settings_values(snap), {}, saved)
-    return templates.TemplateResponse(request, "projects/settings.html", {"ctx": ctx, "page": ctx.page})
+    return templates.TemplateResponse(
+        request, "projects/settings.html", {"ctx": ctx, "page": ctx.page, "form_version": content_version(snap.info)}
+    )
 
 
 @router.post("/projects/{pid}/settings", name="project_settings_update")
 def update_settings(request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep, form: FormDep) -> Response:
     try:
-        svc.update_settings(pid, form)
+        svc.update_settings(pid, form, expected_version=form.get("version") or None)
+    except StaleEdit as exc:  # someone saved the settings since the form was drawn: 409, typed values kept
+        snap = svc.snapshot(pid)
+        values = {**settings_values(snap), **form}
+        ctx = SettingsContext(page(snap, "Project settings", "settings"), values, {"": form_conflict_message(exc)})
+        return templates.TemplateResponse(
+            request,
+            "projects/settings.html",
+            {"ctx": ctx, "page": ctx.page, "form_version": content_version(snap.info)},
+            status_code=409,
+        )
     except EditRejected as exc:
         snap = svc.snapshot(pid)
         values = {**settings_values(snap), **form}
@@ -97,7 +111,10 @@ def update_settings(request: Request, pid: int, svc: ServicesDep, templates: Tem
             values["include_future"] = "no"
         ctx = SettingsContext(page(snap, "Project settings", "settings"), values, exc.by_field())
         return templates.TemplateResponse(
-            request, "projects/settings.html", {"ctx": ctx, "page": ctx.page}, status_code=422
+            request,
+            "projects/settings.html",
+            {"ctx": ctx, "page": ctx.page, "form_version": content_version(snap.info)},
+            status_code=422,
         )
     return RedirectResponse(f"/projects/{pid}/settings?saved=true", status_code=303)
 

@@ -5,7 +5,8 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import RedirectResponse, Response
 
-from server.services import EditRejected, NotFound, Snapshot
+from server.services import EditRejected, NotFound, Snapshot, StaleEdit
+from server.web.conflicts import form_conflict_message
 from server.web.deps import FormDep, ServicesDep, TemplatesDep
 from server.web.views import (
     TransformerContext,
@@ -66,7 +67,17 @@ def show(request: Request, pid: int, tag: str, svc: ServicesDep, templates: Temp
 @router.post("/projects/{pid}/transformers/{tag}", name="transformer_update")
 def update(request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: FormDep) -> Response:
     try:
-        svc.update_transformer(pid, tag, form)
+        svc.update_transformer(pid, tag, form, expected_version=form.get("version") or None)
+    except StaleEdit as exc:  # someone saved this transformer since the form was drawn: 409, typed values kept
+        return _detail(
+            request,
+            templates,
+            svc.snapshot(pid),
+            tag,
+            values=form,
+            errors={"": form_conflict_message(exc)},
+            status_code=409,
+        )
     except EditRejected as exc:
         errors: dict[str, str] = {}
         for key, message in exc.by_field().items():

@@ -21,6 +21,7 @@ import time
 from collections import defaultdict
 from pathlib import Path
 
+import pytest
 from sqlalchemy import select
 
 from server.calc.projectfile import dump_project
@@ -252,3 +253,61 @@ def test_sigkill_mid_stream_keeps_every_acknowledged_edit(tmp_path: Path, _sqlit
     changed = [p for p in unacked if model.panel(p[0]).circuit_at(p[1]).va != p[2]]
     assert not changed, f"circuits changed that were never edited: {changed[:5]}"
     svc.sessions.kw["bind"].dispose()
+
+
+def _form_version(html: str, form_id: str) -> str:
+    start = html.index(f'id="{form_id}"')
+    return re.search(r'name="version" value="([0-9a-f]+)"', html[start:]).group(1)
+
+
+@pytest.mark.parametrize("kind", ["panel", "transformer", "settings"])
+def test_stale_whole_form_gets_409_with_the_typed_values_kept(app, client, demo_id, kind):
+    from fastapi.testclient import TestClient
+
+    snap = app.state.services.snapshot(demo_id)
+    if kind == "panel":
+        url, form_id = f"/projects/{demo_id}/panels/{snap.model.panels[0].tag}", "panel-header"
+    elif kind == "transformer":
+        url, form_id = f"/projects/{demo_id}/transformers/{snap.model.transformers[0].tag}", "transformer-form"
+    else:
+        url, form_id = f"/projects/{demo_id}/settings", "settings-form"
+    field = "client" if kind == "settings" else "description"
+    with TestClient(app, raise_server_exceptions=False, follow_redirects=False) as other:
+        sign_in(other, app, "engineer", "second")
+        seen = _form_version(client.get(url).text, form_id)
+        assert _form_version(other.get(url).text, form_id) == seen
+        first = {field: "Saved first", "version": seen}
+        second = {field: "Typed second", "version": seen}
+        if kind == "settings":
+            from server.web.views import settings_values
+
+            base = settings_values(snap)
+            first, second = {**base, **first}, {**base, **second}
+        assert client.post(url if kind != "settings" else url, data=first, follow_redirects=False).status_code == 303
+        r = other.post(url, data=second)
+        assert r.status_code == 409
+        assert "changed by engineer" in r.text and "Saved first" in r.text and 'value="Typed second"' in r.text
+        assert f"{field}: Saved first" in r.text
+        # Saving again from the refused form (it now carries the stored version) keeps the typed value.
+        again = {**second, "version": _form_version(r.text, form_id)}
+        assert other.post(url, data=again).status_code == 303
+    after = app.state.services.snapshot(demo_id)
+    element = {
+        "panel": lambda: after.model.panels[0],
+        "transformer": lambda: after.model.transformers[0],
+        "settings": lambda: after.info,
+    }[kind]()
+    assert getattr(element, field) == "Typed second"
+
+
+def test_content_version_follows_the_canonical_project_file(app, demo_id):
+    from server import versions
+    from server.calc.projectfile import dump_project
+
+    model = app.state.services.snapshot(demo_id).model
+    data = dump_project(model)
+    assert versions.content_version(model.project) == versions.of_plain(data["project"])
+    for p, raw in zip(model.panels, data["panels"], strict=True):
+        assert versions.content_version(p) == versions.of_plain(raw)
+    for t, raw in zip(model.transformers, data["transformers"], strict=True):
+        assert versions.content_version(t) == versions.of_plain(raw)
