@@ -479,3 +479,24 @@ def test_main_overload_feeder_ampacity_and_feeder_ocpd_warnings(project) -> None
     assert {"feeder-ampacity", "feeder-ocpd", "conductor-too-small"} <= codes
     msg = next(w.message for w in res.panels["LP-2"].warnings if w.code == WarningCode.FEEDER_AMPACITY)
     assert "LP-2" in msg and "60.4" in msg
+
+
+def test_secondary_fault_includes_source_level_and_primary_feeder() -> None:
+    data = json.loads(DATA.read_text())
+    infinite = compute_project(loads_project(json.dumps(data))).transformers["T1"].secondary_fault_ka
+    data["transformers"][0]["feeder"] = {"length_ft": 300, "size": "1"}
+    with_feeder = compute_project(loads_project(json.dumps(data))).transformers["T1"].secondary_fault_ka
+    data["sources"][0]["fault_ka"] = 10
+    data["sources"][0]["x_over_r"] = 6
+    with_source = compute_project(loads_project(json.dumps(data))).transformers["T1"].secondary_fault_ka
+    assert with_source < with_feeder < infinite
+    # Ohmic check of the feeder step: Z_T + Z_feeder referred by (208/480)² (IEEE Std 141 ohmic method).
+    from server.calc.faults import bolted_fault_ka, transformer_impedance
+    from server.calc.systems import SYSTEMS
+    from server.calc.voltage_drop import feeder_impedance_ohm
+
+    z = (
+        transformer_impedance(75, 5.0, 4.0, 208.0, True)
+        + feeder_impedance_ohm("1", "Cu", "steel", 300, 1) * (208.0 / 480.0) ** 2
+    )
+    assert_close(with_feeder, bolted_fault_ka(z, SYSTEMS["208Y/120 3PH 4W"]))
