@@ -7,7 +7,8 @@ Prints, against floors measured in the same run (never absolute times as pass/fa
    WeasyPrint with the shared stylesheet, and its share of the pypdf merge) ÷ the floor:
    WeasyPrint rendering a minimal page of the same paper size holding one plain, unstyled
    table with the same cell texts (target ≤ 1.3×).  Interleaved, best of 3 per sheet, over a
-   deterministic sample of panel sheets.
+   deterministic sample of panel sheets, in CPU time of this process (``time.process_time``:
+   other processes competing for the cores do not count; the wall-clock ratio is printed too).
 2. Full set from a cold cache (parallel across every core) ÷ re-issuing revision 2 after one
    circuit edit (recompute, deltas, sheets, cache lookups, re-render of the changed sheets,
    merge) — target ≥ 20×.
@@ -32,7 +33,7 @@ from tests.benchmarks.generate import generate_project
 
 REV1 = RevisionInfo(1, "2026-12-01", "Issued for permit", "JK")
 REV2 = RevisionInfo(2, "2026-12-08", "One circuit changed", "JK")
-REPEATS = 3
+REPEATS = 5
 COLUMNS = 13  # the panel schedule's circuit table is 13 columns wide
 
 
@@ -59,30 +60,34 @@ def per_sheet_ratio(project, result, sample: int) -> tuple[float, float, float, 
     paper = project.project.paper
     html_to_pdf(sheet_html(chosen[0], paper))  # warm up fonts and the stylesheet
     _floor_render(floor_html(sheet_html(chosen[0], paper), paper))
-    ours_total = floor_total = 0.0
+    ours_total = floor_total = ours_wall = floor_wall = 0.0
     pdfs = []
     for spec in chosen:
-        best_ours = best_floor = float("inf")
+        best_ours = best_floor = bw_ours = bw_floor = float("inf")
         for _ in range(REPEATS):
-            t0 = time.perf_counter()
+            w0, t0 = time.perf_counter(), time.process_time()
             text = sheet_html(spec, paper)
             cache_key(text)
             pdf = html_to_pdf(text)
-            best_ours = min(best_ours, time.perf_counter() - t0)
+            best_ours = min(best_ours, time.process_time() - t0)
+            bw_ours = min(bw_ours, time.perf_counter() - w0)
             floor = floor_html(text, paper)
-            t0 = time.perf_counter()
+            w0, t0 = time.perf_counter(), time.process_time()
             _floor_render(floor)
-            best_floor = min(best_floor, time.perf_counter() - t0)
+            best_floor = min(best_floor, time.process_time() - t0)
+            bw_floor = min(bw_floor, time.perf_counter() - w0)
         pdfs.append(pdf)
         ours_total += best_ours
         floor_total += best_floor
-    t0 = time.perf_counter()
+        ours_wall += bw_ours
+        floor_wall += bw_floor
+    t0 = time.process_time()
     merge_pdfs(pdfs, [s.number for s in chosen])
-    merge_share = (time.perf_counter() - t0) / len(chosen)
+    merge_share = (time.process_time() - t0) / len(chosen)
     n = len(chosen)
     ours = ours_total / n + merge_share
     floor = floor_total / n
-    return ours, floor, ours / floor, n
+    return ours, floor, ours / floor, n, (ours_wall / n + merge_share) / (floor_wall / n)
 
 
 def edit_one_circuit(project):
@@ -108,10 +113,11 @@ def main() -> None:
         f"{os.cpu_count()} cores, {args.workers} workers; load average {os.getloadavg()[0]:.1f}"
     )
 
-    ours, floor, ratio, n = per_sheet_ratio(project, result, args.sample)
+    ours, floor, ratio, n, wall_ratio = per_sheet_ratio(project, result, args.sample)
     print(
-        f"[1] per panel sheet, single process: ours {ours:.3f} s, floor (one plain table, same cells, same paper) "
-        f"{floor:.3f} s -> ratio {ratio:.2f}x (target <= 1.3x; {n} sheets, best of 3)"
+        f"[1] per panel sheet, single process, CPU time: ours {ours:.3f} s, floor (one plain table, same cells, "
+        f"same paper) {floor:.3f} s -> ratio {ratio:.2f}x (target <= 1.3x; {n} sheets, best of {REPEATS}); "
+        f"wall-clock ratio {wall_ratio:.2f}x"
     )
 
     with tempfile.TemporaryDirectory() as cache:
