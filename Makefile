@@ -8,10 +8,10 @@ STAMP := $(VENV)/.installed
 
 .PHONY: run test install system-deps lint bench clean
 
-$(STAMP): pyproject.toml
+$(STAMP): pyproject.toml constraints.txt
 	python3 -m venv $(VENV)
 	$(VENV)/bin/pip install -q --upgrade pip
-	$(VENV)/bin/pip install -q -e '.[test]'
+	$(VENV)/bin/pip install -q -c constraints.txt -e '.[test]'
 	touch $(STAMP)
 
 install: $(STAMP)
