@@ -51,6 +51,9 @@ class Settings(BaseSettings):
     backup_dir: str | None = Field(
         None, description="Folder of the daily backups `serve` makes (unset: no scheduled backup)"
     )
+    max_upload_mb: float = Field(
+        10.0, gt=0, description="Largest spreadsheet upload accepted, in megabytes (read by server/sheets/limits.py)"
+    )
     backup_keep: int = Field(14, ge=1, description="How many daily backups to keep in the backup folder")
 
     @field_validator("database_url")
