@@ -422,3 +422,22 @@ def test_serve_refuses_single_user_on_a_lan_address():
     result = CliRunner().invoke(cli, ["serve", "--single-user", "--host", "0.0.0.0"])
     assert result.exit_code == 2
     assert "--single-user serves this machine only" in result.output
+
+
+def test_first_run_page_only_on_the_server_and_only_once(app):
+    remote = TestClient(app, client=("192.0.2.10", 50000))  # TEST-NET-1 (RFC 5737)
+    assert remote.get("/setup").status_code == 403
+    local = TestClient(app)
+    page = local.get("/setup")
+    assert page.status_code == 200
+    token = re.search(r'name="csrf_token" value="([0-9a-f]+)"', page.text).group(1)
+    r = local.post(
+        "/setup",
+        data={"name": "owner", "password": TEST_PASSWORD, "password2": TEST_PASSWORD, "csrf_token": token},
+        follow_redirects=False,
+    )
+    assert r.status_code == 303
+    home = local.get("/")
+    assert home.status_code == 200 and "owner" in home.text and "(admin)" in home.text
+    again = TestClient(app).get("/setup")
+    assert again.status_code == 403 and "already exists" in again.text
