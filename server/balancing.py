@@ -65,7 +65,7 @@ log = logging.getLogger("panelwright.balancing")
 
 #: Audit actions (the ``action`` column holds at most 20 characters).
 ACTION_APPLY = "balance"
-ACTION_UNDO = "undo balance"
+ACTION_UNDO = "undo-balance"  # one word: the history page uses it as a CSS class
 
 #: Form fields of the options, in the order the form shows them.
 OPTION_FIELDS = ("objective", "max_moves", "keep_sides", "allow_spaces", "include_future")

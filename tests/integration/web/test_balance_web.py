@@ -224,7 +224,7 @@ def test_undo_restores_the_exported_project_exactly(app, client, demo_id):
     assert "previous arrangement" in parse(r.text).by_id("balance-message").text
     assert svc.export_file(demo_id) == original
     lines = audit.events(svc.sessions, project_id=demo_id, limit=2)
-    assert [e.action for e in lines] == ["undo balance", "balance"]
+    assert [e.action for e in lines] == ["undo-balance", "balance"]
     assert lines[0].before == lines[1].after and lines[0].after == lines[1].before
     assert _audit_count(app, demo_id) == audit_before + 2
     # Undo twice is refused: the panel is no longer what the undo form was made for.
@@ -375,3 +375,12 @@ def test_results_after_apply_and_undo_equal_a_full_recompute(app, client, demo_i
         if step == "apply":
             r = client.post(_url(demo_id, "undo"), data=_form(applied, "balance-undo-form"), headers=htmx())
             assert r.status_code == 200
+
+
+def test_history_shows_the_rearrangement_as_one_change(client, demo_id):
+    client.post(_url(demo_id, "apply"), data=_form(_preview(client, demo_id), "balance-apply-form"), headers=htmx())
+    page = client.get(f"/projects/{demo_id}/panels/{TAG}/history")
+    assert page.status_code == 200
+    rows = [tr for tr in parse(page.text).by_id("history").find_all("tr") if "act-balance" in tr.attrs.get("class", "")]
+    assert rows and f"balance panel {TAG} slots" in rows[0].text
+    assert any("Display wall" in tr.text for tr in rows)
