@@ -88,9 +88,7 @@ DEFAULT_PF_OTHER = 0.9
 #: Categories continuous by default (load expected on for 3 h or more, NFPA 70 Art. 100
 #: "Continuous Load"): general lighting, fixed space heating (NEC 424.4(B)) and EV charging
 #: (NEC 625.42 treats EVSE as continuous).
-CONTINUOUS_BY_DEFAULT: frozenset[Category] = frozenset(
-    {Category.LIGHTING, Category.HEATING, Category.EV_CHARGING}
-)
+CONTINUOUS_BY_DEFAULT: frozenset[Category] = frozenset({Category.LIGHTING, Category.HEATING, Category.EV_CHARGING})
 
 
 @dataclass(frozen=True)

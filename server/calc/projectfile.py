@@ -524,7 +524,9 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
     for kind, items in (("source", project.sources), ("transformer", project.transformers), ("panel", project.panels)):
         for item in items:
             if item.tag in kinds:
-                problems.append(Problem(f"duplicate tag (already used by a {kinds[item.tag]})", tag=item.tag, field="tag"))
+                problems.append(
+                    Problem(f"duplicate tag (already used by a {kinds[item.tag]})", tag=item.tag, field="tag")
+                )
             else:
                 kinds[item.tag] = kind
 
@@ -535,10 +537,24 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
                 continue
             target = kinds.get(c.feeds)
             if target is None:
-                problems.append(Problem(f"feeds {c.feeds!r}, which is not a panel or transformer in this project", panel.tag, c.slot, "feeds"))
+                problems.append(
+                    Problem(
+                        f"feeds {c.feeds!r}, which is not a panel or transformer in this project",
+                        panel.tag,
+                        c.slot,
+                        "feeds",
+                    )
+                )
                 continue
             if target == "source":
-                problems.append(Problem(f"feeds {c.feeds!r}, which is a source; sources feed, they are not fed", panel.tag, c.slot, "feeds"))
+                problems.append(
+                    Problem(
+                        f"feeds {c.feeds!r}, which is a source; sources feed, they are not fed",
+                        panel.tag,
+                        c.slot,
+                        "feeds",
+                    )
+                )
                 continue
             if c.feeds == panel.tag:
                 problems.append(Problem("a panel cannot feed itself", panel.tag, c.slot, "feeds"))
@@ -571,11 +587,17 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
                 )
             continue
         if element.fed_from is None:
-            problems.append(Problem("is not fed from anything: give fed_from or a feeds circuit", element.tag, field="fed_from"))
+            problems.append(
+                Problem("is not fed from anything: give fed_from or a feeds circuit", element.tag, field="fed_from")
+            )
             continue
         up_kind = kinds.get(element.fed_from)
         if up_kind is None:
-            problems.append(Problem(f"fed_from names {element.fed_from!r}, which is not in this project", element.tag, field="fed_from"))
+            problems.append(
+                Problem(
+                    f"fed_from names {element.fed_from!r}, which is not in this project", element.tag, field="fed_from"
+                )
+            )
             continue
         if up_kind == "panel":
             problems.append(
@@ -587,7 +609,13 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
             )
             continue
         if isinstance(element, Transformer) and up_kind == "transformer":
-            problems.append(Problem(f"a transformer cannot be fed straight from transformer {element.fed_from}", element.tag, field="fed_from"))
+            problems.append(
+                Problem(
+                    f"a transformer cannot be fed straight from transformer {element.fed_from}",
+                    element.tag,
+                    field="fed_from",
+                )
+            )
             continue
         parent[element.tag] = element.fed_from
 
@@ -602,7 +630,11 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
         if isinstance(element, Panel):
             if element.system and element.system != up_system:
                 problems.append(
-                    Problem(f"system {element.system} does not match {up_system} of {up}, which feeds it", element.tag, field="system")
+                    Problem(
+                        f"system {element.system} does not match {up_system} of {up}, which feeds it",
+                        element.tag,
+                        field="system",
+                    )
                 )
         else:
             pri, upspec = SYSTEMS.get(element.primary), SYSTEMS.get(up_system)
@@ -643,7 +675,9 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
             node = parent.get(node)
 
 
-def _check_feeding_poles(element: Panel | Transformer, breaker: Circuit, panel_tag: str, problems: list[Problem]) -> None:
+def _check_feeding_poles(
+    element: Panel | Transformer, breaker: Circuit, panel_tag: str, problems: list[Problem]
+) -> None:
     if isinstance(element, Panel):
         spec = SYSTEMS.get(element.system)
         need = len(spec.phases) if spec else None
@@ -656,7 +690,12 @@ def _check_feeding_poles(element: Panel | Transformer, breaker: Circuit, panel_t
             need = None  # a 2-wire secondary may sit on 1 or 2 poles
     if need is not None and breaker.poles != need:
         problems.append(
-            Problem(f"a {breaker.poles}-pole breaker cannot feed {what}: it needs {need} poles", panel_tag, breaker.slot, "poles")
+            Problem(
+                f"a {breaker.poles}-pole breaker cannot feed {what}: it needs {need} poles",
+                panel_tag,
+                breaker.slot,
+                "poles",
+            )
         )
 
 

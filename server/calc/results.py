@@ -265,7 +265,12 @@ class SourceResult:
             "line_amps": _r(self.line_amps),
             "fault_ka": _r(self.fault_ka),
             "demand_steps": [
-                {"category": s.category, "connected_va": _r(s.connected_va), "demand_va": _r(s.demand_va), "rule": s.rule}
+                {
+                    "category": s.category,
+                    "connected_va": _r(s.connected_va),
+                    "demand_va": _r(s.demand_va),
+                    "rule": s.rule,
+                }
                 for s in self.demand_steps
             ],
         }

@@ -174,9 +174,7 @@ def get_system(name: str) -> SystemSpec:
     """Look up a system string; anything else is refused with the list of accepted forms."""
     spec = SYSTEMS.get(name)
     if spec is None:
-        raise UnknownSystemError(
-            f"unknown system {name!r}; accepted forms: " + ", ".join(repr(s) for s in SYSTEMS)
-        )
+        raise UnknownSystemError(f"unknown system {name!r}; accepted forms: " + ", ".join(repr(s) for s in SYSTEMS))
     return spec
 
 
