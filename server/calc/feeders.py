@@ -20,12 +20,20 @@ Design current (from the engine) already holds 125 % of the continuous load
 (215.2(A)(1)); the conductor's ampacity after correction and adjustment must be at least
 the design current (a conservative reading: 215.2(A)(1) lets the adjusted ampacity be
 compared with the load without the 125 %).
+
+Search: the checks of a size only get easier as the size grows at a fixed number of sets
+(Table 310.16 never decreases down a column, 240.4(D) and the parallel minimum only reject
+small sizes, the next-size-up rule only looks at the ampacity), so the smallest fitting
+size of each number of sets is found by bisection, and the words of a rejection are built
+only for the size that is reported.  The result is the one a size-by-size scan would give.
 """
 
 from __future__ import annotations
 
+from bisect import bisect_left
 from collections.abc import Iterator
 from dataclasses import dataclass
+from functools import lru_cache
 
 from . import tables
 from .errors import SizingError
@@ -37,6 +45,8 @@ from .voltage_drop import voltage_drop_pct
 MAX_SETS = 20  # the project file allows at most 20 parallel sets
 MIN_PARALLEL_SIZE = "1/0"
 _EPS = 1e-9
+_SIZES = tables.conductor_sizes()
+_FIRST_PARALLEL = tables.size_index(MIN_PARALLEL_SIZE)
 
 
 def standard_ocpd_at_least(amps: float) -> int:
@@ -45,9 +55,8 @@ def standard_ocpd_at_least(amps: float) -> int:
     Raises SizingError above the largest standard rating (6000 A).
     """
     ratings = tables.standard_ocpd_ratings()
-    for rating in ratings:
-        if rating >= amps - _EPS:
-            return rating
+    if amps - _EPS <= ratings[-1]:  # (written this way round so that NaN is refused too)
+        return ratings[bisect_left(ratings, amps - _EPS)]  # first rating ≥ amps − ε (ascending)
     raise SizingError(f"{amps:,.1f} A is above the largest standard rating of NEC 240.6(A) ({ratings[-1]} A)")
 
 
@@ -59,6 +68,7 @@ def conductor_ampacity(size: str, material: Material | str, column_c: int) -> fl
     return amps
 
 
+@lru_cache(maxsize=1024)  # few distinct (ambient, column, edition) in a project; once per feeder otherwise
 def correction_factor(ambient_c: float, column_c: int, code: CodeEdition | str) -> float:
     """Ambient temperature correction factor (30 °C basis) of the ``column_c`` column.
 
@@ -78,6 +88,7 @@ def correction_factor(ambient_c: float, column_c: int, code: CodeEdition | str) 
     return 0.0
 
 
+@lru_cache(maxsize=256)
 def adjustment_factor(current_carrying: int, code: CodeEdition | str) -> float:
     """Adjustment factor for more than three current-carrying conductors in a raceway or cable.
 
@@ -92,6 +103,7 @@ def adjustment_factor(current_carrying: int, code: CodeEdition | str) -> float:
     raise ValueError(f"no adjustment row for {current_carrying!r} conductors")  # pragma: no cover - table is complete
 
 
+@lru_cache(maxsize=1024)
 def egc_size(ocpd_amps: float, material: Material | str) -> str:
     """NFPA 70 Table 250.122 minimum equipment grounding conductor for an OCPD rating.
 
@@ -143,6 +155,27 @@ class _Rating:
     problems: tuple[str, ...]
 
 
+@lru_cache(maxsize=256)
+def _per_set_ampacities(
+    material: str, column_c: int, terminal_c: int, corr: float, adj: float
+) -> tuple[float | None, ...]:
+    """Ampacity of one set of each size of :func:`tables.conductor_sizes` (None without a row), A.
+
+    min(column ampacity × ambient correction × adjustment, terminal-column ampacity), the
+    arithmetic of :meth:`_Sizer.rate`.  The bisection of :meth:`_Sizer.first_fit` needs it
+    never to decrease with size, which is checked here once per table column.
+    """
+    out: list[float | None] = []
+    for a_ins, a_term in zip(
+        tables.ampacity_column(material, column_c), tables.ampacity_column(material, terminal_c), strict=True
+    ):
+        out.append(None if a_ins is None or a_term is None else min(a_ins * corr * adj, a_term))
+    rows = [a for a in out if a is not None]
+    if rows != sorted(rows):
+        raise ValueError(f"Table 310.16 data: the {material} ampacities must not decrease with size")
+    return tuple(out)
+
+
 class _Sizer:
     """The ampacity and protection checks of one feeder (shared by search and given-size check)."""
 
@@ -155,6 +188,7 @@ class _Sizer:
         self.design = design_amps
         self.ocpd = ocpd
         self.code = code
+        self.per_set = _per_set_ampacities(self.material.value, self.column, self.terminal, self.corr, self.adj)
 
     def has_row(self, size: str) -> bool:
         return tables.ampacity_a(size, self.material, self.column) is not None
@@ -198,6 +232,32 @@ class _Sizer:
             )
         return _Rating(per_set, total, not problems, tuple(problems))
 
+    def fits(self, index: int, sets: int) -> bool:
+        """``rate(size, sets).ok`` for the size at ``index`` of :func:`tables.conductor_sizes`,
+        without building any message: the same checks in the same arithmetic (a unit test
+        compares the two over every size)."""
+        per_set = self.per_set[index]
+        if per_set is None:
+            return False
+        total = per_set * sets
+        if total < self.design - _EPS:
+            return False
+        limit = tables.small_conductor_max_ocpd_a(_SIZES[index], self.material)
+        if limit is not None and self.ocpd > limit:
+            return False
+        if total < self.ocpd - _EPS and (self.ocpd > 800 or standard_ocpd_at_least(total) < self.ocpd):
+            return False
+        return sets == 1 or index >= _FIRST_PARALLEL
+
+    def first_fit(self, indexes: tuple[int, ...], sets: int) -> int | None:
+        """The smallest size index of ``indexes`` (ascending) that fits with ``sets`` sets, or None.
+
+        :meth:`fits` never turns false as the size grows (module docstring), so bisect.
+        """
+        if not indexes or not self.fits(indexes[-1], sets):
+            return None
+        return indexes[bisect_left(indexes, True, key=lambda i: self.fits(i, sets))]
+
     def words(self, size: str, sets: int, rating: _Rating) -> str:
         a_ins = tables.ampacity_a(size, self.material, self.column) or 0.0
         a_term = tables.ampacity_a(size, self.material, self.terminal) or 0.0
@@ -215,21 +275,34 @@ class _Sizer:
         return text + f" = {rating.total_a:.0f} A for {self.design:.1f} A design, {self.ocpd} A OCPD"
 
 
-def _candidates(feeder: Feeder, max_parallel_size: str) -> Iterator[tuple[int, str]]:
+def _candidates(fixed_sets: int | None, max_parallel_size: str) -> Iterator[tuple[int, str]]:
     """(sets, size) in the order they are tried: fewer sets first, then smaller sizes."""
     sizes = tables.conductor_sizes()
     top = tables.size_index(max_parallel_size)
     first_parallel = tables.size_index(MIN_PARALLEL_SIZE)
-    if feeder.sets is not None:
-        lo = first_parallel if feeder.sets > 1 else 0
+    if fixed_sets is not None:
+        lo = first_parallel if fixed_sets > 1 else 0
         for size in sizes[lo:]:
-            yield feeder.sets, size
+            yield fixed_sets, size
         return
     for size in sizes[: top + 1]:
         yield 1, size
     for sets in range(2, MAX_SETS + 1):
         for size in sizes[first_parallel : top + 1]:
             yield sets, size
+
+
+@lru_cache(maxsize=64)
+def _candidate_groups(
+    fixed_sets: int | None, max_parallel_size: str, material: str, column_c: int
+) -> tuple[tuple[int, tuple[int, ...]], ...]:
+    """:func:`_candidates` with a Table 310.16 row in ``material`` and ``column_c``, grouped by
+    number of sets: ((sets, ascending size indexes), ...) in the order they are tried."""
+    groups: dict[int, list[int]] = {}
+    for sets, size in _candidates(fixed_sets, max_parallel_size):
+        if tables.ampacity_a(size, material, column_c) is not None:
+            groups.setdefault(sets, []).append(tables.size_index(size))
+    return tuple((sets, tuple(indexes)) for sets, indexes in groups.items())
 
 
 def design_feeder(
@@ -334,20 +407,19 @@ def design_feeder(
             )
         vd = vd_of(size, sets)
     else:
+        groups = _candidate_groups(feeder.sets, max_parallel_size, material.value, sizer.column)
         chosen: tuple[int, str, _Rating] | None = None
-        last: tuple[int, str, _Rating] | None = None
-        for sets_c, size_c in _candidates(feeder, max_parallel_size):
-            if not sizer.has_row(size_c):
-                continue
-            rating_c = sizer.rate(size_c, sets_c)
-            last = (sets_c, size_c, rating_c)
-            if rating_c.ok:
-                chosen = last
+        for sets_c, indexes in groups:
+            first = sizer.first_fit(indexes, sets_c)
+            if first is not None:
+                chosen = (sets_c, _SIZES[first], sizer.rate(_SIZES[first], sets_c))
                 break
         if chosen is None:
-            if last is None:  # pragma: no cover - every material has rows
+            if not groups:  # pragma: no cover - every material has rows
                 raise SizingError(f"{tag}: no conductor size to try")
-            chosen = last
+            # Report the last candidate tried (the largest size of the most sets), as a scan would.
+            sets_c, indexes = groups[-1]
+            chosen = (sets_c, _SIZES[indexes[-1]], sizer.rate(_SIZES[indexes[-1]], sets_c))
             warn(
                 WarningCode.NO_SIZE,
                 f"no conductor up to {MAX_SETS if feeder.sets is None else feeder.sets} set(s) of the allowed sizes "
@@ -360,18 +432,19 @@ def design_feeder(
         reasons.append("ampacity: " + sizer.words(size, sets, rating))
         vd = vd_of(size, sets)
         if vd is not None and vd > vd_limit_pct + _EPS and rating.ok:
+            # Step on from the chosen candidate, in order, to the first that fits and meets the limit.
             start = False
             upsized: tuple[int, str, _Rating, float] | None = None
-            for sets_c, size_c in _candidates(feeder, max_parallel_size):
+            for sets_c, index in ((s, i) for s, indexes in groups for i in indexes):
+                size_c = _SIZES[index]
                 if (sets_c, size_c) == (sets, size):
                     start = True
                     continue
-                if not start or not sizer.has_row(size_c):
+                if not start or not sizer.fits(index, sets_c):
                     continue
-                rating_c = sizer.rate(size_c, sets_c)
                 vd_c = vd_of(size_c, sets_c)
-                if rating_c.ok and vd_c is not None and vd_c <= vd_limit_pct + _EPS:
-                    upsized = (sets_c, size_c, rating_c, vd_c)
+                if vd_c is not None and vd_c <= vd_limit_pct + _EPS:
+                    upsized = (sets_c, size_c, sizer.rate(size_c, sets_c), vd_c)
                     break
             if upsized is not None:
                 reasons.append(

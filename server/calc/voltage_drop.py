@@ -18,13 +18,16 @@ balanced load, whose neutral then carries no current).
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 from . import tables
 from .model import Conduit, Material
 from .systems import SQRT3, SystemSpec
 
 
+@lru_cache(maxsize=512)  # sizes × materials × conduits: a few hundred at most; errors are never cached
 def _row(size: str, material: Material | str, conduit: Conduit | str) -> tuple[float, float]:
+    """(R, X_L) of Table 9, ohms to neutral per 1000 ft."""
     row = tables.table9().get(size)
     if row is None:
         raise ValueError(f"conductor size {size!r} is not in NFPA 70 Chapter 9 Table 9")

@@ -4,7 +4,10 @@ Every ``*.json`` file in this folder holds one published table (or a few small r
 ones) with a top-level ``source`` (document, edition, table number) and ``note`` (which
 values were entered from memory and must be checked against the printed edition).  The
 loaders below read them once (``functools.lru_cache``) and hand out immutable views; the
-calculation modules never hard-code a table value.
+calculation modules never hard-code a table value.  Lookups on the engine's hot path
+(ampacity, 240.4(D) limits, section numbers, demand tiers, circular mils) are memoised too:
+they are pure functions of a few strings and numbers, and a recompute asks the same few
+hundred questions many thousands of times.
 
 ``conductor_sizes`` is also used by the project-file parser to check typed sizes.
 """
@@ -42,8 +45,13 @@ def size_index(size: str) -> int:
 
 
 def _edition(code: Any) -> str:
-    """The edition key used in the data files ("NEC-2023"), from a CodeEdition or its value."""
-    return str(getattr(code, "value", code))
+    """The edition key used in the data files ("NEC-2023"), from a CodeEdition or its value.
+
+    Also the key of any other StrEnum (material, conduit, occupancy).  ``_value_`` is the plain
+    attribute behind an enum member's ``value`` property, several times cheaper to read.
+    """
+    value = getattr(code, "_value_", code)
+    return value if type(value) is str else str(value)
 
 
 @cache
@@ -67,6 +75,7 @@ def data_files() -> tuple[str, ...]:
 # --- code section numbers by edition ---------------------------------------------------
 
 
+@cache
 def section(key: str, code: Any) -> str:
     """Edition-correct section or table number of a rule (``code_sections.json``)."""
     return load("code_sections")["sections"][key][_edition(code)]
@@ -85,6 +94,7 @@ def ampacity_table() -> MappingProxyType[str, MappingProxyType[str, tuple[float,
     return MappingProxyType(out)
 
 
+@cache
 def ampacity_a(size: str, material: Any, column_c: int) -> float | None:
     """Table 310.16 ampacity, or None where the table has no row (e.g. 14 AWG aluminium)."""
     if column_c not in TEMPERATURE_COLUMNS_C:
@@ -95,6 +105,14 @@ def ampacity_a(size: str, material: Any, column_c: int) -> float | None:
     return row[TEMPERATURE_COLUMNS_C.index(column_c)]
 
 
+@cache
+def ampacity_column(material: Any, column_c: int) -> tuple[float | None, ...]:
+    """One column of Table 310.16: the ampacity of every size of :func:`conductor_sizes`, in
+    that order (None where the table has no row), for searches that step through the sizes."""
+    return tuple(ampacity_a(size, material, column_c) for size in CONDUCTOR_SIZES)
+
+
+@cache
 def small_conductor_max_ocpd_a(size: str, material: Any) -> int | None:
     """NEC 240.4(D) limit on the overcurrent device of 14–10 AWG conductors (None above 10 AWG)."""
     limits = load("ampacity_310_16")["small_conductor_max_ocpd_a"][_edition(material)]
@@ -159,6 +177,7 @@ def egc_rows() -> tuple[tuple[int, str, str], ...]:
     return tuple((int(r["max_ocpd_a"]), str(r["Cu"]), str(r["Al"])) for r in load("egc_250_122")["rows"])
 
 
+@cache
 def circular_mils(size: str) -> float:
     """Conductor area in circular mils: Chapter 9 Table 8 for AWG; kcmil × 1000 by definition."""
     awg = load("chapter9_table8")["circular_mils"]
@@ -241,11 +260,13 @@ def _tiers(raw: list[list[Any]]) -> Tiers:
     return tuple((None if bound is None else float(bound), float(f)) for bound, f in raw)
 
 
+@cache
 def demand_citation(rule: str, code: Any) -> str:
     """Edition-correct section/table of an Article 220 rule (lighting, receptacle, kitchen, ...)."""
     return load("demand_factors")[rule]["citation"][_edition(code)]
 
 
+@cache
 def lighting_demand_tiers(occupancy: Any) -> tuple[str, Tiers]:
     """Lighting demand table row for an occupancy: (row name, tiers); 'All others' = 100 %."""
     data = load("demand_factors")["lighting"]
@@ -253,6 +274,7 @@ def lighting_demand_tiers(occupancy: Any) -> tuple[str, Tiers]:
     return row["row"], _tiers(row["tiers"])
 
 
+@cache
 def receptacle_tiers() -> Tiers:
     return _tiers(load("demand_factors")["receptacle"]["tiers"])
 

@@ -13,7 +13,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from server.calc import tables
+from server.calc import feeders, tables
 from server.calc.errors import SizingError
 from server.calc.feeders import (
     FeederDesign,
@@ -431,3 +431,58 @@ def test_given_single_set_too_large_load_reports_no_size() -> None:
     d = _design(700.0, Feeder(sets=1), system=WYE480)
     assert WarningCode.NO_SIZE in _codes(d)
     assert (d.result.sets, d.result.conductor) == (1, "1000")
+
+
+# --- the fast search gives what a size-by-size scan gives (program rule, no table values) -------------
+
+_SEARCH_SETTINGS = settings(max_examples=150, deadline=None)
+_FEEDER_INPUTS = {
+    "material": st.sampled_from(list(Material)),
+    "column": st.sampled_from([60, 75, 90]),
+    "terminal": st.sampled_from([60, 75]),
+    "ambient": st.sampled_from([10.0, 30.0, 36.5, 45.0, 55.0, 68.0]),
+    "harmonic": st.booleans(),
+    "design": st.one_of(st.floats(min_value=0.0, max_value=9000.0), st.sampled_from([0.0, 15.0, 20.0, 200.0, 800.0])),
+    "ocpd": st.one_of(st.none(), st.sampled_from(tables.standard_ocpd_ratings())),
+    "fixed_sets": st.sampled_from([None, None, 1, 2, 3, 5]),
+    "top": st.sampled_from(["500", "4/0", "1000"]),
+}
+
+
+@_SEARCH_SETTINGS
+@given(**_FEEDER_INPUTS)
+def test_fits_agrees_with_rate(material, column, terminal, ambient, harmonic, design, ocpd, fixed_sets, top) -> None:
+    # _Sizer.fits (used by the search) must accept exactly the sizes whose full rating has no problem.
+    feeder = Feeder(material=material, insulation_c=column, terminal_c=terminal, ambient_c=ambient)
+    ccc = 4 if harmonic else 3
+    sizer = feeders._Sizer(feeder=feeder, ccc=ccc, design_amps=design, ocpd=ocpd or 100, code=NEC23)
+    for index, size in enumerate(tables.conductor_sizes()):
+        for sets in (1, 2, 3, 4):
+            expected = sizer.has_row(size) and sizer.rate(size, sets).ok
+            assert sizer.fits(index, sets) == expected, (size, sets)
+
+
+@_SEARCH_SETTINGS
+@given(**_FEEDER_INPUTS)
+def test_search_matches_size_by_size_scan(
+    material, column, terminal, ambient, harmonic, design, ocpd, fixed_sets, top
+) -> None:
+    # The bisection picks the first (sets, size) in trial order that passes every check, or reports the
+    # last one tried when none does: the same choice as trying every candidate in turn.
+    feeder = Feeder(
+        material=material, insulation_c=column, terminal_c=terminal, ambient_c=ambient, sets=fixed_sets, ocpd_amps=ocpd
+    )
+    d = _design(design, feeder, system=WYE480, harmonic=harmonic, max_parallel_size=top).result
+    sizer = feeders._Sizer(feeder=feeder, ccc=d.current_carrying, design_amps=design, ocpd=d.ocpd_amps, code=NEC23)
+    scanned = None
+    for sets, size in feeders._candidates(fixed_sets, top):
+        if sizer.has_row(size):
+            scanned = (sets, size)
+            if sizer.rate(size, sets).ok:
+                break
+    assert (d.sets, d.conductor) == scanned
+
+
+def test_standard_ocpd_refuses_nan() -> None:
+    with pytest.raises(SizingError):
+        standard_ocpd_at_least(float("nan"))
