@@ -26,6 +26,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
+from functools import cache
 
 from . import tables
 from .model import Category, CodeEdition, Occupancy
@@ -35,6 +36,15 @@ LARGEST_MOTOR_STEP = "largest_motor"
 #: Category key of an existing load taken from metered data (NEC 220.87): already the maximum
 #: demand × 125 %, so it counts at 100 % and never in a demand tier of its own kind.
 METERED_EXISTING = "metered_existing"
+
+# Category values as plain strings, read once: apply_demand runs at every node of every recompute.
+_CATEGORY_ORDER = tuple(c.value for c in Category)
+_LIGHTING = Category.LIGHTING.value
+_RECEPTACLE = Category.RECEPTACLE.value
+_KITCHEN = Category.KITCHEN.value
+_HEATING = Category.HEATING.value
+_COOLING = Category.COOLING.value
+_MOTOR = Category.MOTOR.value
 
 
 @dataclass(frozen=True)
@@ -75,6 +85,7 @@ def _pct(f: float) -> str:
     return f"{f * 100:g} %"
 
 
+@cache  # the tier tables are few and fixed
 def _tier_words(tiers: tables.Tiers) -> str:
     parts = []
     lower = 0.0
@@ -90,6 +101,7 @@ def _tier_words(tiers: tables.Tiers) -> str:
     return ", ".join(parts)
 
 
+@cache
 def _rule(code: CodeEdition, key: str) -> str:
     return f"{code.value} {tables.demand_citation(key, code)}"
 
@@ -104,7 +116,7 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
     occupancy = Occupancy(occupancy)
     connected = {str(k): float(v) for k, v in inp.connected_by_category.items()}
     continuous = {str(k): float(v) for k, v in inp.continuous_by_category.items()}
-    present = [c.value for c in Category if c.value in connected]
+    present = [c for c in _CATEGORY_ORDER if c in connected]
     present += sorted(k for k in connected if k not in present)  # unknown keys still count at 100 %
 
     steps: list[CategoryDemand] = []
@@ -115,20 +127,21 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
         factors[cat] = dem / conn if conn else 1.0
 
     # Noncoincident heating and cooling (220.60).
-    heating = connected.get(Category.HEATING.value, 0.0)
-    cooling = connected.get(Category.COOLING.value, 0.0)
+    heating = connected.get(_HEATING, 0.0)
+    cooling = connected.get(_COOLING, 0.0)
     dropped: str | None = None
     if heating > 0 and cooling > 0:
-        dropped = Category.HEATING.value if cooling >= heating else Category.COOLING.value
+        dropped = _HEATING if cooling >= heating else _COOLING
 
     dwelling = occupancy == Occupancy.DWELLING
-    lighting = connected.get(Category.LIGHTING.value, 0.0)
-    receptacle = connected.get(Category.RECEPTACLE.value, 0.0)
+    lighting = connected.get(_LIGHTING, 0.0)
+    receptacle = connected.get(_RECEPTACLE, 0.0)
     row, light_tiers = tables.lighting_demand_tiers(occupancy)
+    edition = code.value
 
     for cat in present:
         conn = connected[cat]
-        if cat == Category.LIGHTING.value or (cat == Category.RECEPTACLE.value and dwelling):
+        if cat == _LIGHTING or (cat == _RECEPTACLE and dwelling):
             base = lighting + receptacle if dwelling else lighting
             total = apply_tiers(base, light_tiers)
             dem = total * conn / base if base else 0.0
@@ -139,10 +152,10 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
                     f"({base:,.0f} VA → {total:,.0f} VA, {tables.demand_citation('dwelling_receptacles', code)})"
                 )
             add(cat, conn, dem, _rule(code, "lighting"), note)
-        elif cat == Category.RECEPTACLE.value:
+        elif cat == _RECEPTACLE:
             tiers = tables.receptacle_tiers()
             add(cat, conn, apply_tiers(conn, tiers), _rule(code, "receptacle"), _tier_words(tiers))
-        elif cat == Category.KITCHEN.value:
+        elif cat == _KITCHEN:
             units = max(int(inp.kitchen_units), 0)
             factor = tables.kitchen_factor(units)
             floor = sum(inp.kitchen_two_largest_va)
@@ -153,7 +166,7 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
                 note += f"; raised to the two largest units ({floor:,.0f} VA)"
             add(cat, conn, dem, _rule(code, "kitchen"), note)
         elif cat == dropped:
-            other = "cooling" if cat == Category.HEATING.value else "heating"
+            other = "cooling" if cat == _HEATING else "heating"
             add(
                 cat,
                 conn,
@@ -161,8 +174,8 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
                 _rule(code, "noncoincident"),
                 f"omitted: noncoincident with the larger {other} load ({connected[other]:,.0f} VA)",
             )
-        elif cat in (Category.HEATING.value, Category.COOLING.value) and dropped is not None:
-            other = "cooling" if cat == Category.HEATING.value else "heating"
+        elif cat in (_HEATING, _COOLING) and dropped is not None:
+            other = "cooling" if cat == _HEATING else "heating"
             add(
                 cat,
                 conn,
@@ -170,16 +183,16 @@ def apply_demand(inp: DemandInput, *, code: CodeEdition, occupancy: Occupancy) -
                 _rule(code, "noncoincident"),
                 f"100 %; kept as the larger of heating and cooling ({other} omitted)",
             )
-        elif cat == Category.MOTOR.value:
+        elif cat == _MOTOR:
             add(cat, conn, conn, _rule(code, "motors"), "100 % of every motor (25 % of the largest added below)")
         elif cat == METERED_EXISTING:
-            add(cat, conn, conn, f"{code.value} 220.87", "existing load from metered maximum demand × 125 %, at 100 %")
+            add(cat, conn, conn, f"{edition} 220.87", "existing load from metered maximum demand × 125 %, at 100 %")
         else:
-            add(cat, conn, conn, f"{code.value} Article 220", "100 %")
+            add(cat, conn, conn, f"{edition} Article 220", "100 %")
 
     # 25 % of the largest motor (220.50 → 430.24); a dropped cooling load is not a candidate.
     candidates = [max(float(inp.largest_motor_va), 0.0)]
-    if dropped != Category.COOLING.value and cooling > 0:
+    if dropped != _COOLING and cooling > 0:
         candidates.append(max(float(inp.largest_cooling_va), 0.0))
     largest = max(candidates)
     motor_factor = tables.largest_motor_factor()
