@@ -98,12 +98,12 @@ def edit_one_circuit(project):
     return replace(project, panels=tuple(new_panel if p is panel else p for p in project.panels)), panel.tag, c.slot
 
 
-def main() -> None:
+def main(argv: list[str] | None = None) -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--panels", type=int, default=500)
     ap.add_argument("--workers", type=int, default=os.cpu_count() or 1)
     ap.add_argument("--sample", type=int, default=8, help="panel sheets timed for the per-sheet ratio")
-    args = ap.parse_args()
+    args = ap.parse_args(argv)
 
     # The default tree has 8 services; smaller runs keep its proportions (at least one service).
     project = generate_project(panels=args.panels, sources=max(1, round(8 * args.panels / 500)))
@@ -147,6 +147,11 @@ def main() -> None:
             f"render {stats2.render_s:.2f} s, merge {stats2.merge_s:.2f} s)"
         )
         print(f"    full ÷ re-issue = {full / reissue:.1f}x (target >= 20x)")
+
+
+def test_pdf_benchmark_quick() -> None:
+    """``pytest tests/benchmarks/bench_pdf.py -s``: a quick run (14 panels) that prints the figures."""
+    main(["--panels", "14", "--sample", "2"])
 
 
 if __name__ == "__main__":
