@@ -18,6 +18,7 @@ import csv
 import getpass
 import io
 import json
+import weakref
 from contextvars import ContextVar
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, time, timedelta
@@ -87,16 +88,29 @@ def _changes(obj: Any) -> tuple[dict[str, Any], dict[str, Any]]:
     return before, after
 
 
+#: Per engine: panel id → (project id, tag).  A panel row never changes project or tag (a
+#: renamed panel is a new row with a new id), so an entry stays true for its engine's database;
+#: the bound only limits memory.
+_PANEL_PLACES: weakref.WeakKeyDictionary[Any, dict[int, tuple[int, str]]] = weakref.WeakKeyDictionary()
+_PANEL_PLACES_MAX = 100_000
+
+
 class _Places:
-    """Panel id → (project id, tag), from the flush's own objects or one query each."""
+    """Panel id → (project id, tag): from the flush's own objects, the engine's cache, or one query."""
 
     def __init__(self, session: Session) -> None:
         self.session = session
         self.cache: dict[int, tuple[int | None, str | None]] = {}
+        try:
+            self.known = _PANEL_PLACES.setdefault(session.get_bind(), {})
+        except TypeError:  # a bind that cannot be weakly referenced: no cache across flushes
+            self.known = {}
 
     def panel(self, panel_id: int | None, obj: Any = None) -> tuple[int | None, str | None]:
         if panel_id is None:
             return (None, None)
+        if panel_id not in self.cache and panel_id in self.known:
+            self.cache[panel_id] = self.known[panel_id]
         if panel_id not in self.cache:
             p = obj if obj is not None else self.session.identity_map.get(self.session.identity_key(db.Panel, panel_id))  # type: ignore[arg-type]
             if p is not None:
@@ -108,6 +122,11 @@ class _Places:
                     .first()
                 )
                 self.cache[panel_id] = (row[0], row[1]) if row else (None, None)
+            pid, tag = self.cache[panel_id]
+            if pid is not None and tag is not None:
+                if len(self.known) >= _PANEL_PLACES_MAX:
+                    self.known.clear()
+                self.known[panel_id] = (pid, tag)
         return self.cache[panel_id]
 
 
