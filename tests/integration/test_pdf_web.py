@@ -66,6 +66,16 @@ def test_whole_set_without_htmx_redirects_to_the_job_page(client, demo_id):
     assert 'data-state="done"' in final
 
 
+def test_a_reviewer_may_print(app, client, demo_id):
+    from tests.integration.web.conftest import sign_in
+
+    sign_in(client, app, "reviewer")
+    r = client.post(f"/projects/{demo_id}/pdf", data={"sheets": "T-1"}, headers=htmx())
+    assert r.status_code == 200, r.text
+    final = _follow(client, r.text.split('hx-get="')[1].split('"')[0])
+    assert 'data-state="done"' in final
+
+
 def test_unknown_sheet_is_refused_with_its_name(client, demo_id):
     r = client.post(f"/projects/{demo_id}/pdf", data={"sheets": "LP-77"}, headers=htmx())
     assert r.status_code == 404

@@ -12,9 +12,11 @@ import os
 import re
 from dataclasses import dataclass
 
-from fastapi import APIRouter, Form, Request
+from fastapi import APIRouter, Depends, Form, Request
 from fastapi.responses import FileResponse, RedirectResponse, Response
 
+from server.auth.permissions import Require
+from server.auth.roles import Permission
 from server.pdf.jobs import Job, JobRegistry
 from server.pdf.render import default_cache_dir
 from server.services import NotFound
@@ -22,6 +24,8 @@ from server.web.deps import HtmxDep, ServicesDep, TemplatesDep
 from server.web.views import Page, page
 
 router = APIRouter(tags=["pdf"])
+#: Making a PDF changes nothing stored: reading the project is enough, so reviewers may print too.
+READ = [Depends(Require(Permission.READ))]
 BASE = "/projects/{pid}/pdf"
 
 
@@ -66,7 +70,7 @@ class PdfPageContext:
     revision: str  # what the set prints: "revision N" or "draft (not issued)"
 
 
-@router.get(BASE, name="pdf_page")
+@router.get(BASE, name="pdf_page", dependencies=READ)
 def pdf_page(request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep) -> Response:
     snap = svc.snapshot(pid)
     from server.pdf.stored import stored_set
@@ -77,7 +81,7 @@ def pdf_page(request: Request, pid: int, svc: ServicesDep, templates: TemplatesD
     return templates.TemplateResponse(request, "pdfjobs/index.html", {"ctx": ctx, "page": ctx.page})
 
 
-@router.post(BASE, name="pdf_start")
+@router.post(BASE, name="pdf_start", dependencies=READ)
 def start(
     request: Request, pid: int, svc: ServicesDep, templates: TemplatesDep, htmx: HtmxDep, sheets: str = Form("")
 ) -> Response:
@@ -101,7 +105,7 @@ def start(
     return templates.TemplateResponse(request, "pdfjobs/_job.html", {"ctx": ctx, "page": ctx.page})
 
 
-@router.get(BASE + "/jobs/{job_id}", name="pdf_job")
+@router.get(BASE + "/jobs/{job_id}", name="pdf_job", dependencies=READ)
 def status(
     request: Request, pid: int, job_id: str, svc: ServicesDep, templates: TemplatesDep, htmx: HtmxDep
 ) -> Response:
@@ -111,7 +115,7 @@ def status(
     return templates.TemplateResponse(request, name, {"ctx": ctx, "page": ctx.page})
 
 
-@router.get(BASE + "/jobs/{job_id}/download", name="pdf_download")
+@router.get(BASE + "/jobs/{job_id}/download", name="pdf_download", dependencies=READ)
 def download(request: Request, pid: int, job_id: str) -> Response:
     job = _job(request, pid, job_id)
     if job.state != "done" or job.path is None or not os.path.exists(job.path):
