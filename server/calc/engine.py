@@ -578,6 +578,8 @@ class Calculator:
         self._vd_note = _tables.section("feeder_vd_note", self.code)
         self._warnings_dirty = True
         self._all_warnings: tuple[CalcWarning, ...] = ()
+        self._result: ProjectResult | None = None  # None: the next _assemble builds every entry
+        self._reissued: list[_Node] = []  # nodes whose final result _top_down replaced since _assemble
         for n in self.order:
             if n.kind == "transformer":
                 self._wire_transformer(n)
@@ -1069,6 +1071,7 @@ class Calculator:
                 node.z_bus = z
                 node.cum_vd = 0.0
                 node.final = local.result
+                self._reissued.append(node)
                 node.final_key = (local,)
                 node.final_by_severity = ()
                 node.final_warnings = ()
@@ -1130,6 +1133,7 @@ class Calculator:
             else:
                 warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
                 node.final = _evolve(local.result, feeder=new_feeder, secondary_fault_ka=fault_ka, warnings=warnings)
+            self._reissued.append(node)
             if warnings is not node.final_warnings:
                 node.final_warnings = warnings
                 groups = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
@@ -1171,13 +1175,23 @@ class Calculator:
         panels: dict[str, PanelResult] = {}
         transformers: dict[str, TransformerResult] = {}
         sources: dict[str, SourceResult] = {}
-        nodes = self.nodes
-        for p in self.project.panels:
-            panels[p.tag] = nodes[p.tag].final  # type: ignore[assignment]
-        for t in self.project.transformers:
-            transformers[t.tag] = nodes[t.tag].final  # type: ignore[assignment]
-        for s in self.project.sources:
-            sources[s.tag] = nodes[s.tag].final  # type: ignore[assignment]
+        prev = self._result
+        if prev is None:
+            nodes = self.nodes
+            for p in self.project.panels:
+                panels[p.tag] = nodes[p.tag].final  # type: ignore[assignment]
+            for t in self.project.transformers:
+                transformers[t.tag] = nodes[t.tag].final  # type: ignore[assignment]
+            for s in self.project.sources:
+                sources[s.tag] = nodes[s.tag].final  # type: ignore[assignment]
+        else:
+            # After update_panel: same elements in the same order, only the re-issued results are
+            # new.  Copies of the previous dicts, so a result handed out earlier never changes.
+            panels, transformers, sources = dict(prev.panels), dict(prev.transformers), dict(prev.sources)
+            by_kind: dict[str, dict] = {"panel": panels, "transformer": transformers, "source": sources}
+            for node in self._reissued:
+                by_kind[node.kind][node.tag] = node.final
+        self._reissued = []
         # Every node's warnings carry its own tag and are already sorted, so the project list
         # (severity, then tag, slot, code) is a concatenation in (severity, tag) order; it is
         # rebuilt only when some node's warnings changed.
