@@ -349,6 +349,22 @@ def test_update_panel_equals_full_compute(project) -> None:
     assert calc.update_panel(moved) == compute_project(replace_panel(calc.project, moved))
 
 
+def test_update_panel_leaves_earlier_results_unchanged(project) -> None:
+    # A result handed out before an edit (an older snapshot) keeps its values; the new result lists
+    # the elements in the project's order, as a full compute does.
+    calc = Calculator(project)
+    before = calc.result()
+    before_json = json.dumps(before.to_json())
+    lp2 = project.panel("LP-2")
+    assert lp2 is not None
+    edited = replace(lp2, circuits=(replace(lp2.circuits[0], va=9_000.0), *lp2.circuits[1:]))
+    after = calc.update_panel(edited)
+    assert json.dumps(before.to_json()) == before_json
+    assert after.panels["LP-2"] != before.panels["LP-2"]
+    assert list(after.panels) == [p.tag for p in project.panels]
+    assert list(after.transformers) == [t.tag for t in project.transformers]
+
+
 def _xf_project(transformer: dict, panel_circuits: list[dict], *, feed_poles: int = 2, feed_slot: int = 1) -> dict:
     return {
         "format": "panelwright.project",
