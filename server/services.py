@@ -322,14 +322,18 @@ class ImportOutcome:
 
 @dataclass
 class _Locks:
-    """One lock per project so edits of one project in this process run one at a time."""
+    """One lock per project so edits of one project in this process run one at a time.
 
-    locks: dict[int, threading.Lock] = field(default_factory=dict)
+    Re-entrant: a writer holding it reads its own result through :meth:`Services.snapshot`,
+    which takes it on a cache miss (see there).
+    """
+
+    locks: dict[int, threading.RLock] = field(default_factory=dict)
     guard: threading.Lock = field(default_factory=threading.Lock)
 
-    def of(self, project_id: int) -> threading.Lock:
+    def of(self, project_id: int) -> threading.RLock:
         with self.guard:
-            return self.locks.setdefault(project_id, threading.Lock())
+            return self.locks.setdefault(project_id, threading.RLock())
 
 
 def blank_to_none(form: Mapping[str, Any]) -> dict[str, Any]:
@@ -411,7 +415,18 @@ class Services:
             version, archived = state
             entry = self.cache.get(project_id, version)
             if entry is None:
-                entry = self._rebuild(s, project_id)
+                # A writer of this process may have committed and not yet advanced the cache: wait
+                # for it and look again, rather than recompute the whole project (seconds on a
+                # large one) in every reader that arrives in that window.
+                s.rollback()  # end the read transaction: the next query sees the newest commit
+                with self._locks.of(project_id):
+                    state = s.execute(
+                        select(db.Project.data_version, db.Project.archived).where(db.Project.id == project_id)
+                    ).first()
+                    if state is None:
+                        raise NotFound(f"project {project_id} does not exist")
+                    version, archived = state
+                    entry = self.cache.get(project_id, version) or self._rebuild(s, project_id)
             return Snapshot(project_id, entry.data_version, archived, entry.model, entry.result, entry.versions)
 
     def _rebuild(self, s: Session, project_id: int) -> _Entry:
