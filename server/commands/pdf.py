@@ -96,6 +96,7 @@ def command(
     current = RevisionInfo(revision, revision_date, revision_description, issued_by) if revision is not None else None
 
     path = Path(source)
+    growth = None  # load-growth sheets: a stored project with issued revisions only
     try:
         if path.exists() or source.endswith(".json"):
             project = load_project_file(path)
@@ -105,7 +106,7 @@ def command(
         else:
             if previous is not None or current is not None:
                 fail("--previous and --revision apply to a project FILE; a stored project uses its issued revisions")
-            project, result, history = _stored(source)
+            project, result, history, growth = _stored(source)
     except ProjectFileError as exc:
         fail(exc.describe())
     except CalcError as exc:
@@ -122,9 +123,13 @@ def command(
             cache_dir=cache,
             workers=workers,
             progress=_progress(sys.stderr.isatty()),
+            growth=growth,
         )
     except KeyError as exc:
-        fail(f"--sheets: no sheet named {exc.args[0]} (use panel, transformer or source tags, or sheet numbers)")
+        fail(
+            f"--sheets: no sheet named {exc.args[0]} (use panel, transformer or source tags, sheet numbers, "
+            "or index, warnings, transformers, growth)"
+        )
     try:
         out.write_bytes(pdf)
     except OSError as exc:
@@ -138,7 +143,7 @@ def command(
 
 
 def _stored(key: str):  # type: ignore[no-untyped-def]
-    """Model, result and history of a project in the database (by number or id)."""
+    """Model, result, history and growth charts of a project in the database (by number or id)."""
     from server.config import Settings
     from server.db.migrate import DatabaseNotMigrated, ensure_migrated
     from server.db.session import make_engine, make_sessionmaker
@@ -157,4 +162,4 @@ def _stored(key: str):  # type: ignore[no-untyped-def]
     except NotFound:
         fail(f"{key}: no such file, and no project with that number or id in the database")
     stored = stored_set(services, pid)
-    return stored.model, stored.result, stored.history
+    return stored.model, stored.result, stored.history, stored.growth

@@ -21,7 +21,16 @@ from server.calc.results import ProjectResult
 
 from .deltas import Deltas, diff_projects
 from .render import Progress, RenderStats, SheetCache, merge_pdfs, render_pdfs, sheet_html
-from .sheets import DRAFT, IssueHistory, RevisionInfo, SheetSpec, build_sheets, printed_values, touched_sheets
+from .sheets import (
+    DRAFT,
+    GrowthChart,
+    IssueHistory,
+    RevisionInfo,
+    SheetSpec,
+    build_sheets,
+    printed_values,
+    touched_sheets,
+)
 
 
 def compute(project: Project, include_future: bool | None = None) -> ProjectResult:
@@ -82,8 +91,13 @@ def history_from_revisions(
     revisions: Sequence[tuple[RevisionInfo, Mapping[str, Any]]],
     *,
     current: RevisionInfo | None,
+    growth: bool = False,
 ) -> IssueHistory:
-    """History from stored revisions (oldest first; each with its version-1 project dict)."""
+    """History from stored revisions (oldest first; each with its version-1 project dict).
+
+    ``growth``: the sets carry a load-growth sheet per service (a stored project's sets do once
+    a revision is issued), so each revision also changed those sheets and their index entries.
+    """
     if not revisions:
         return IssueHistory(current=current, first_issue=True) if current else DRAFT
     parsed = [(info, parse_project(data, source=f"revision {info.number}")) for info, data in revisions]
@@ -97,7 +111,8 @@ def history_from_revisions(
             previous_result=results[k - 1],
             current_result=results[k],
         )
-        touched[parsed[k][0].number] = touched_sheets(parsed[k][1], results[k], d)
+        grown = [s.tag for s in parsed[k][1].sources] if growth else ()
+        touched[parsed[k][0].number] = touched_sheets(parsed[k][1], results[k], d, grown)
     deltas = revision_deltas(
         parsed[-1][1],
         project,
@@ -119,11 +134,16 @@ def make_set(
     cache_dir: str | Path | None = None,
     workers: int | None = None,
     progress: Progress | None = None,
+    growth: Mapping[str, GrowthChart] | None = None,
 ) -> tuple[bytes, RenderStats]:
-    """The merged PDF of the set (or of the selected sheets) and how it was made."""
+    """The merged PDF of the set (or of the selected sheets) and how it was made.
+
+    ``growth``: source tag → load-growth chart (:func:`server.pdf.stored.growth_charts`); a
+    set made from a bare project file has no revisions to chart and passes none.
+    """
     stats = RenderStats()
     t0 = time.perf_counter()
-    specs: list[SheetSpec] = build_sheets(project, result, history, select=select)
+    specs: list[SheetSpec] = build_sheets(project, result, history, select=select, growth=growth)
     paper = project.project.paper
     htmls = [sheet_html(s, paper) for s in specs]
     stats.html_s = time.perf_counter() - t0

@@ -88,6 +88,7 @@ class JobRegistry:
                 select=job.sheets,
                 cache_dir=self.cache_dir,
                 progress=progress,
+                growth=stored.growth,
             )
             self.output_dir.mkdir(parents=True, exist_ok=True)
             path = self.output_dir / f"{job.id}.pdf"

@@ -10,7 +10,7 @@ exactly what the sheets print.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable, Mapping, Sequence
+from collections.abc import Callable, Collection, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -468,6 +468,44 @@ class WarningsSheet:
 
 
 @dataclass(frozen=True)
+class GrowthRow:
+    """One snapshot of a growth chart as printed in the table under it (kVA; ``None``: absent)."""
+
+    label: str
+    connected_kva: float | None
+    demand_kva: float | None
+    demand_future_kva: float | None
+
+    @property
+    def future_kva(self) -> float | None:
+        if self.demand_kva is None or self.demand_future_kva is None:
+            return None
+        return self.demand_future_kva - self.demand_kva
+
+
+@dataclass(frozen=True)
+class GrowthChart:
+    """A service's load-growth chart exactly as the browser's Growth page draws it.
+
+    ``svg`` is :func:`server.charts.growth_chart_svg` of
+    ``Growth(services).series(pid, tag).chart_data()`` (issued revisions and the working copy);
+    the sheet embeds that text inline, so the sheet's HTML (and its cache key) changes whenever
+    a plotted value does.  Built by :func:`server.pdf.stored.growth_charts`.
+    """
+
+    tag: str
+    svg: str
+    rows: tuple[GrowthRow, ...]
+
+
+@dataclass(frozen=True)
+class GrowthSheet:
+    title: TitleBlock
+    chart: GrowthChart
+    delta_rev: int | None
+
+
+@dataclass(frozen=True)
 class IndexEntry:
     number: str
     title: str
@@ -549,10 +587,13 @@ def service_of(project: Project) -> dict[str, str]:
     return out
 
 
-def _plans(project: Project, result: ProjectResult, deltas: Deltas) -> list[_Plan]:
+def _plans(project: Project, result: ProjectResult, deltas: Deltas, growth: Collection[str] = ()) -> list[_Plan]:
     """The sheets after the index, in order, grouped by service (so one edit touches one
-    stretch of the set and of its index): the load calculation, the transformer schedule,
-    the panels, then that service's warnings in parts."""
+    stretch of the set and of its index): the load calculation, the load growth (services
+    named in ``growth``), the transformer schedule, the panels, then that service's warnings
+    in parts.
+
+    A growth sheet counts as changed by every revision: each issue adds a point to its chart."""
     service = service_of(project)
     panels_of: dict[str, list[Panel]] = {}
     for p in project.panels:
@@ -601,6 +642,17 @@ def _plans(project: Project, result: ProjectResult, deltas: Deltas) -> list[_Pla
                 deltas.touches(s.tag),
             )
         )
+        if s.tag in growth:
+            plans.append(
+                _Plan(
+                    f"*growth*:{s.tag}",
+                    f"Load growth — service {s.tag}",
+                    "growth",
+                    frozenset({"growth"}),
+                    True,
+                    s.tag,
+                )
+            )
         txs = [t for t in project.transformers if service.get(t.tag) == s.tag and t.tag in result.transformers]
         if txs:
             plans.append(
@@ -639,10 +691,13 @@ def _index_layout(paper: Paper, n_plans: int) -> list[tuple[int, int]]:
     return out
 
 
-def touched_sheets(project: Project, result: ProjectResult, deltas: Deltas) -> frozenset[str]:
+def touched_sheets(
+    project: Project, result: ProjectResult, deltas: Deltas, growth: Collection[str] = ()
+) -> frozenset[str]:
     """Keys of the sheets a revision changed: the cover always, continuation index sheets
-    that list a changed sheet, and every sheet whose content changed."""
-    plans = _plans(project, result, deltas)
+    that list a changed sheet, and every sheet whose content changed (``growth``: the services
+    whose set had a load-growth sheet)."""
+    plans = _plans(project, result, deltas, growth)
     keys = {"*index*:1"} | {p.key for p in plans if p.touched}
     for k, (start, count) in enumerate(_index_layout(PAPERS[project.project.paper], len(plans))[1:], start=2):
         if any(p.touched for p in plans[start : start + count]):
@@ -661,9 +716,13 @@ def build_sheets(
     history: IssueHistory = DRAFT,
     *,
     select: Sequence[str] | None = None,
+    growth: Mapping[str, GrowthChart] | None = None,
 ) -> list[SheetSpec]:
-    """Every sheet of the set in order: index, per service load calculation and transformers,
-    panels, warnings.
+    """Every sheet of the set in order: index, per service load calculation, load growth,
+    transformers, panels, warnings.
+
+    ``growth`` maps a source tag to its growth chart (a stored project with issued revisions,
+    :func:`server.pdf.stored.growth_charts`); services without one get no growth sheet.
 
     ``select`` keeps only sheets named by tag or sheet number (the index is then included
     only when named).  Unknown names raise ``KeyError`` naming them.
@@ -673,7 +732,8 @@ def build_sheets(
     deltas = history.deltas
     drev = history.current.number if history.current is not None and not history.first_issue else None
     basis = basis_text(project, result)
-    plans = _plans(project, result, deltas)
+    growth = growth or {}
+    plans = _plans(project, result, deltas, growth)
 
     # The index: the cover holds one column of entries; each continuation sheet two.
     per_col = _index_capacity(paper)
@@ -726,6 +786,8 @@ def build_sheets(
                 ),
                 drev,
             )
+        elif plan.kind == "growth":
+            ctx = GrowthSheet(tb, growth[plan.payload], drev)
         elif plan.kind == "loadcalc":
             src = project.source(plan.key)
             assert src is not None

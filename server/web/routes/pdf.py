@@ -93,7 +93,7 @@ def start(
         | {s.tag for s in snap.model.sources}
     )
     for n in names or []:
-        if n not in known and not re.fullmatch(r"PW-\d{3}(\.\d+)?|index|cover|warnings|transformers", n):
+        if n not in known and not re.fullmatch(r"PW-\d{3}(\.\d+)?|index|cover|warnings|transformers|growth", n):
             raise NotFound(f"no sheet named {n} in project {snap.info.number or pid}")
     stem = re.sub(
         r"[^A-Za-z0-9._-]+", "-", f"{snap.info.number or pid}-{names[0] if names and len(names) == 1 else 'set'}"
