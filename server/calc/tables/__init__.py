@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass
-from functools import cache
+from functools import cache, lru_cache
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -47,11 +47,15 @@ def size_index(size: str) -> int:
 def _edition(code: Any) -> str:
     """The edition key used in the data files ("NEC-2023"), from a CodeEdition or its value.
 
-    Also the key of any other StrEnum (material, conduit, occupancy).  ``_value_`` is the plain
-    attribute behind an enum member's ``value`` property, several times cheaper to read.
+    Also the key of any other StrEnum (material, conduit, occupancy).  Reading ``_value_`` is
+    several times cheaper than the ``value`` property, and this runs in the engine's hot path.
     """
-    value = getattr(code, "_value_", code)
-    return value if type(value) is str else str(value)
+    if type(code) is str:
+        return code
+    value = getattr(code, "_value_", None)  # an Enum member: the plain attribute behind ``.value``
+    if value is None:
+        value = getattr(code, "value", code)
+    return str(value)
 
 
 @cache
@@ -94,7 +98,7 @@ def ampacity_table() -> MappingProxyType[str, MappingProxyType[str, tuple[float,
     return MappingProxyType(out)
 
 
-@cache
+@lru_cache(maxsize=1024)  # bounded: the size may come from a typed value
 def ampacity_a(size: str, material: Any, column_c: int) -> float | None:
     """Table 310.16 ampacity, or None where the table has no row (e.g. 14 AWG aluminium)."""
     if column_c not in TEMPERATURE_COLUMNS_C:
@@ -112,7 +116,7 @@ def ampacity_column(material: Any, column_c: int) -> tuple[float | None, ...]:
     return tuple(ampacity_a(size, material, column_c) for size in CONDUCTOR_SIZES)
 
 
-@cache
+@lru_cache(maxsize=1024)  # bounded: the size may come from a typed value
 def small_conductor_max_ocpd_a(size: str, material: Any) -> int | None:
     """NEC 240.4(D) limit on the overcurrent device of 14–10 AWG conductors (None above 10 AWG)."""
     limits = load("ampacity_310_16")["small_conductor_max_ocpd_a"][_edition(material)]
@@ -177,7 +181,7 @@ def egc_rows() -> tuple[tuple[int, str, str], ...]:
     return tuple((int(r["max_ocpd_a"]), str(r["Cu"]), str(r["Al"])) for r in load("egc_250_122")["rows"])
 
 
-@cache
+@lru_cache(maxsize=1024)  # bounded: the size may come from a typed value
 def circular_mils(size: str) -> float:
     """Conductor area in circular mils: Chapter 9 Table 8 for AWG; kcmil × 1000 by definition."""
     awg = load("chapter9_table8")["circular_mils"]
