@@ -11,12 +11,18 @@ import sys
 from pathlib import Path
 
 import pytest
+from hypothesis import settings
 
 ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
 ARTIFACTS = ROOT / "test-artifacts"
+
+# Shared machines are noisy: a per-example deadline would make property tests fail on load,
+# not on wrong answers.  Examples stay bounded by max_examples.
+settings.register_profile("panelwright", deadline=None, print_blob=True)
+settings.load_profile("panelwright")
 
 
 def pytest_addoption(parser: pytest.Parser) -> None:
