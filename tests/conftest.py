@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 
 import pytest
-from hypothesis import settings
+from hypothesis import HealthCheck, settings
 
 ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:
@@ -21,7 +21,7 @@ ARTIFACTS = ROOT / "test-artifacts"
 
 # Shared machines are noisy: a per-example deadline would make property tests fail on load,
 # not on wrong answers.  Examples stay bounded by max_examples.
-settings.register_profile("panelwright", deadline=None, print_blob=True)
+settings.register_profile("panelwright", deadline=None, print_blob=True, suppress_health_check=[HealthCheck.too_slow])
 settings.load_profile("panelwright")
 
 
