@@ -27,7 +27,9 @@ from tests.helpers import assert_close
 THREE_WIRE = ["480 3PH 3W", "240 3PH 3W", "600 3PH 3W"]
 FOUR_WIRE = ["208Y/120 3PH 4W", "480Y/277 3PH 4W", "240/120 3PH 4W"]
 PF = st.floats(min_value=0.5, max_value=1.0)
-VA = st.floats(min_value=0.0, max_value=50_000.0, allow_nan=False)
+# Loads are empty or at least a milliwatt-scale VA: subnormal floats (5e-324 VA) underflow
+# when averaged and say nothing about a panelboard.
+VA = st.one_of(st.just(0.0), st.floats(min_value=1e-3, max_value=50_000.0, allow_nan=False))
 
 
 @given(
