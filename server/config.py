@@ -54,6 +54,13 @@ class Settings(BaseSettings):
     max_upload_mb: float = Field(
         10.0, gt=0, description="Largest spreadsheet upload accepted, in megabytes (read by server/sheets/limits.py)"
     )
+    pdf_cache_dir: str | None = Field(
+        None,
+        description=(
+            "Where rendered PDF sheets are cached by content hash; unset: ./var/pdf-cache for the server, "
+            "a temporary folder for the CLI (read by server/pdf/render.py)"
+        ),
+    )
     backup_keep: int = Field(14, ge=1, description="How many daily backups to keep in the backup folder")
 
     @field_validator("database_url")

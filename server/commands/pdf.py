@@ -15,6 +15,7 @@ import sys
 from pathlib import Path
 
 import click
+from pydantic import ValidationError
 
 from server.calc.errors import CalcError, ProjectFileError
 from server.calc.projectfile import load_project_file
@@ -113,7 +114,11 @@ def command(
         fail(f"{source}: {exc}")
 
     select = [s for s in sheets.split(",") if s.strip()] if sheets else None
-    cache = None if no_cache else (cache_dir or default_cache_dir(cli=True))
+    try:
+        cache = None if no_cache else (cache_dir or default_cache_dir(cli=True))
+    except ValidationError as exc:  # a malformed PANELWRIGHT_ variable, named
+        err = exc.errors()[0]
+        fail(f"PANELWRIGHT_{str(err['loc'][0]).upper()}: {err['msg']}")
     try:
         pdf, stats = make_set(
             project,

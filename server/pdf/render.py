@@ -24,6 +24,7 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import jinja2
 
@@ -31,12 +32,15 @@ from server.formatting import register_filters
 
 from .sheets import PAPERS, SheetSpec
 
+if TYPE_CHECKING:
+    from server.config import Settings
+
 RENDERER_VERSION = "1"
 ROOT = Path(__file__).resolve().parent.parent.parent
 TEMPLATES_DIR = ROOT / "templates"
 PDF_TEMPLATES = TEMPLATES_DIR / "pdf"
 STYLESHEET = PDF_TEMPLATES / "sheet.css"
-CACHE_ENV = "PANELWRIGHT_PDF_CACHE_DIR"
+CACHE_ENV = "PANELWRIGHT_PDF_CACHE_DIR"  # Settings.pdf_cache_dir
 DEFAULT_CACHE_DIR = Path("var") / "pdf-cache"
 
 #: Below this many sheets to render, starting worker processes costs more than it saves.
@@ -139,9 +143,13 @@ class SheetCache:
         os.replace(tmp, path)
 
 
-def default_cache_dir(*, cli: bool = False) -> Path:
-    """PANELWRIGHT_PDF_CACHE_DIR, else ./var/pdf-cache (server) or a per-user temp dir (CLI)."""
-    value = os.environ.get(CACHE_ENV)
+def default_cache_dir(*, cli: bool = False, settings: Settings | None = None) -> Path:
+    """``Settings.pdf_cache_dir`` (PANELWRIGHT_PDF_CACHE_DIR), else ./var/pdf-cache (server) or a
+    per-user temp dir (CLI).  Without ``settings``, fresh settings are read from the environment
+    (pydantic's ``ValidationError`` if some PANELWRIGHT_ variable is malformed)."""
+    from server.config import Settings
+
+    value = (settings if settings is not None else Settings()).pdf_cache_dir
     if value:
         return Path(value)
     if cli:

@@ -40,10 +40,10 @@ class PdfJobContext:
 
 
 def registry(request: Request) -> JobRegistry:
-    """The app's job registry, made on first use (cache: PANELWRIGHT_PDF_CACHE_DIR or ./var/pdf-cache)."""
+    """The app's job registry, made on first use (cache: the app's ``pdf_cache_dir`` setting or ./var/pdf-cache)."""
     reg = getattr(request.app.state, "pdf_jobs", None)
     if reg is None:
-        cache = default_cache_dir()
+        cache = default_cache_dir(settings=getattr(request.app.state, "settings", None))
         reg = JobRegistry(cache / "sets", cache)
         request.app.state.pdf_jobs = reg
     return reg
