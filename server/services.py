@@ -56,6 +56,18 @@ class Conflict(ServiceError):
     """Someone else changed the project between reading and writing, several times running."""
 
 
+class StaleProject(Conflict):
+    """A whole-project write named a ``data_version`` that is no longer the stored one; nothing was written."""
+
+    def __init__(self, project_id: int, expected: int, current: int) -> None:
+        self.expected, self.current = expected, current
+        super().__init__(
+            f"project {project_id} is at version {current}, not {expected} as your request says "
+            "(someone saved it meanwhile); nothing was written. GET it again, re-apply your change and PUT it "
+            "with the new ETag."
+        )
+
+
 class StaleEdit(Conflict):
     """The edit was based on an older version of the row than the one stored now; nothing was written.
 
@@ -503,9 +515,17 @@ class Services:
             return ImportOutcome(same[0].id, True)
         return ImportOutcome(self.create_project(pf.dump_project(model)), False)
 
-    def replace_project(self, project_id: int, data: Mapping[str, Any]) -> Snapshot:
-        """Replace a project's whole content with a version-1 file (the API's PUT)."""
-        return self._write(project_id, lambda _old: copy.deepcopy(dict(data)))
+    def replace_project(
+        self, project_id: int, data: Mapping[str, Any], *, expected_data_version: int | None = None
+    ) -> Snapshot:
+        """Replace a project's whole content with a version-1 file (the API's PUT).
+
+        With ``expected_data_version``, a project stored at another version is refused with
+        :class:`StaleProject` inside the same transaction, so nothing is written.
+        """
+        return self._write(
+            project_id, lambda _old: copy.deepcopy(dict(data)), expected_data_version=expected_data_version
+        )
 
     def update_settings(
         self, project_id: int, form: Mapping[str, Any], *, expected_version: str | None = None
@@ -542,6 +562,7 @@ class Services:
         *,
         values: Mapping[str, Any] | None = None,
         field_prefix: str = "",
+        expected_data_version: int | None = None,
     ) -> Snapshot:
         """Read the file, let ``build`` change it, validate the whole project, then write it at once.
 
@@ -554,6 +575,8 @@ class Services:
                 claimed = repo.claim_next_version(s, project_id=project_id)
                 if claimed is None:
                     raise NotFound(f"project {project_id} does not exist")
+                if expected_data_version is not None and claimed - 1 != expected_data_version:
+                    raise StaleProject(project_id, expected_data_version, claimed - 1)  # rolls the claim back
                 row = repo.load_project_tree(s, project_id=project_id)
                 assert row is not None
                 if cached is not None and cached.data_version == claimed - 1:

@@ -22,21 +22,52 @@ def test_put_replaces_and_bad_file_is_refused_with_problems(client, demo_id, dem
     changed = copy.deepcopy(demo_data)
     changed["project"]["name"] = "Renamed hall"
     changed["panels"][0]["circuits"] = changed["panels"][0]["circuits"][:-1]
-    r = client.put(f"/api/projects/{demo_id}", json=changed)
+    tag = client.get(f"/api/projects/{demo_id}").headers["ETag"]
+    r = client.put(f"/api/projects/{demo_id}", json=changed, headers={"If-Match": tag})
     assert r.status_code == 200
-    assert client.get(f"/api/projects/{demo_id}").json() == changed
+    got = client.get(f"/api/projects/{demo_id}")
+    assert got.json() == changed
+    assert got.headers["ETag"] == r.headers["ETag"] != tag  # a write moves the tag
+    tag = got.headers["ETag"]
 
     bad = copy.deepcopy(changed)
     bad["panels"][2]["circuits"][0]["va"] = "lots"
     bad["transformers"][0]["kva"] = -1
-    r = client.put(f"/api/projects/{demo_id}", json=bad)
+    r = client.put(f"/api/projects/{demo_id}", json=bad, headers={"If-Match": tag})
     assert r.status_code == 422
     problems = r.json()["problems"]
     where = {(p["tag"], p["field"]) for p in problems}
     assert (bad["panels"][2]["tag"], "va") in where and (bad["transformers"][0]["tag"], "kva") in where
     assert any(p["slot"] == bad["panels"][2]["circuits"][0]["slot"] for p in problems)
     assert client.get(f"/api/projects/{demo_id}").json() == changed
-    assert client.put("/api/projects/999", json=changed).status_code == 404
+    assert client.put("/api/projects/999", json=changed, headers={"If-Match": '"p999-v1"'}).status_code == 404
+    assert client.get(f"/api/projects/{demo_id}").headers["ETag"] == tag  # a refused file moves nothing
+
+
+def test_put_needs_the_current_etag_in_if_match(client, demo_id, demo_data):
+    """RFC 9110 §13.1.1 (If-Match) and RFC 6585 §3 (428 Precondition Required), from memory."""
+    url = f"/api/projects/{demo_id}"
+    first = client.get(url).headers["ETag"]
+    mine, theirs = copy.deepcopy(demo_data), copy.deepcopy(demo_data)
+    mine["project"]["name"] = "Mine"
+    theirs["project"]["name"] = "Theirs"
+
+    r = client.put(url, json=mine)  # no If-Match
+    assert r.status_code == 428 and "If-Match" in r.json()["detail"]
+    assert client.put(url, json=mine, headers={"If-Match": "*"}).status_code == 428  # must name a version
+    assert client.get(url).json()["project"]["name"] == demo_data["project"]["name"]
+
+    assert client.put(url, json=theirs, headers={"If-Match": first}).status_code == 200  # the other writer
+    r = client.put(url, json=mine, headers={"If-Match": first})  # stale: based on the version before theirs
+    assert r.status_code == 409
+    assert "nothing was written" in r.json()["detail"]
+    assert client.get(url).json()["project"]["name"] == "Theirs"
+
+    r = client.put(url, json=mine, headers={"If-Match": '"not-ours"'})
+    assert r.status_code == 409 and "ETag" in r.json()["detail"]
+    current = client.get(url).headers["ETag"]
+    assert client.put(url, json=mine, headers={"If-Match": f'"other", {current}'}).status_code == 200
+    assert client.get(url).json()["project"]["name"] == "Mine"
 
 
 def test_settings_form(client, demo_id):
