@@ -48,6 +48,7 @@ _KINDS: dict[type, str] = {
     db.Circuit: "circuit",
     db.Revision: "revision",
     db.User: "user",
+    db.Comment: "comment",
 }
 _IGNORED = frozenset(
     {"id", "project_id", "panel_id", "position", "version", "data_version", "created_at", "updated_at"}
@@ -150,6 +151,10 @@ def _where(obj: Any, places: _Places) -> tuple[int | None, str | None, str]:
         return d.get("id"), None, f"project {d.get('number') or d.get('name')}"
     if isinstance(obj, db.User):
         return None, None, f"user {d.get('name')}"
+    if isinstance(obj, db.Comment):
+        slot = d.get("slot")
+        at = f"{d.get('panel_tag')}" + (f" slot {slot}" if slot is not None else "")
+        return d.get("project_id"), d.get("panel_tag"), f"comment {d.get('id') or ''} on {at}".replace("  ", " ")
     return None, None, type(obj).__name__
 
 

@@ -25,7 +25,14 @@ from .roles import Permission, allows
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 CSRF_HEADER = "X-CSRF-Token"
 CSRF_FIELD = "csrf_token"
-_RANK = {Permission.PUBLIC: 0, Permission.READ: 1, Permission.EDIT: 2, Permission.ISSUE: 2, Permission.ADMIN: 3}
+_RANK = {
+    Permission.PUBLIC: 0,
+    Permission.READ: 1,
+    Permission.COMMENT: 2,
+    Permission.EDIT: 3,
+    Permission.ISSUE: 3,
+    Permission.ADMIN: 4,
+}
 
 
 class Require:
@@ -58,6 +65,7 @@ class Require:
 
 _VERB = {
     Permission.READ: "view this",
+    Permission.COMMENT: "comment",
     Permission.EDIT: "change projects",
     Permission.ISSUE: "issue revisions",
     Permission.ADMIN: "manage users",

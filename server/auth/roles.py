@@ -1,6 +1,6 @@
 """Roles and permissions: one table says which role may do what.
 
-``reviewer`` reads, compares revisions and exports history (the project manager's seat);
+``reviewer`` reads, comments on panels, compares revisions and exports history (the project manager's seat);
 ``engineer`` also edits and issues revisions; ``admin`` also manages users.  Routes declare
 a :class:`Permission`; :func:`allows` is the only place the table is read.
 """
@@ -19,14 +19,17 @@ class Role(StrEnum):
 class Permission(StrEnum):
     PUBLIC = "public"  # no account needed (login page, static files)
     READ = "read"  # view pages, results, history, revisions; compare
+    COMMENT = "comment"  # write and resolve comments on panels (review notes, not project data)
     EDIT = "edit"  # change projects, panels, circuits; import
     ISSUE = "issue"  # issue a revision
     ADMIN = "admin"  # manage users
 
 
 GRANTS: dict[Role, frozenset[Permission]] = {
-    Role.REVIEWER: frozenset({Permission.PUBLIC, Permission.READ}),
-    Role.ENGINEER: frozenset({Permission.PUBLIC, Permission.READ, Permission.EDIT, Permission.ISSUE}),
+    Role.REVIEWER: frozenset({Permission.PUBLIC, Permission.READ, Permission.COMMENT}),
+    Role.ENGINEER: frozenset(
+        {Permission.PUBLIC, Permission.READ, Permission.COMMENT, Permission.EDIT, Permission.ISSUE}
+    ),
     Role.ADMIN: frozenset(Permission),
 }
 

@@ -258,6 +258,29 @@ class AuditEvent(Base):
     after_json: Mapped[str | None] = mapped_column(Text)
 
 
+class Comment(Base):
+    """A review comment on a panel (optionally on one slot): a note beside the project, not part of its file.
+
+    ``author_id`` is the user's id when the comment was written (0 in single-user mode), kept
+    without a foreign key so a comment outlives its author's account; ``author_name`` is what
+    the thread shows.  Comments do not move ``Project.data_version``.
+    """
+
+    __tablename__ = "comments"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    project_id: Mapped[int] = mapped_column(ForeignKey("projects.id", ondelete="CASCADE"), index=True)
+    panel_tag: Mapped[str] = mapped_column(String(40))
+    slot: Mapped[int | None] = mapped_column(Integer)
+    author_id: Mapped[int] = mapped_column(Integer)
+    author_name: Mapped[str] = mapped_column(String(60))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow)
+    body: Mapped[str] = mapped_column(Text)
+    resolved: Mapped[bool] = mapped_column(Boolean, default=False)
+    resolved_by: Mapped[str | None] = mapped_column(String(60))
+    resolved_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True))
+
+
 class ServerKey(Base):
     """Secrets the server made for itself (the session-signing key when none is configured)."""
 

@@ -21,7 +21,19 @@ from server.config import Settings
 from server.db.migrate import ensure_migrated
 from server.db.session import make_engine, make_sessionmaker
 from server.services import Conflict, NotFound, ServiceError, Services
-from server.web.routes import api, balance, growth, panels, pdf, projects, sheets, transformers, tree, warnings
+from server.web.routes import (
+    api,
+    balance,
+    comments,
+    growth,
+    panels,
+    pdf,
+    projects,
+    sheets,
+    transformers,
+    tree,
+    warnings,
+)
 from server.web.team import DEFAULT_RULE, install_team
 from server.web.templating import STATIC_DIR, make_templates
 from server.web.views import Page
@@ -47,7 +59,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.templates = make_templates()
     app.mount("/static", StaticFiles(directory=str(STATIC_DIR)), name="static")
     install_team(app, settings)  # sign-in, roles, CSRF, audit trail, history, revisions, presence
-    for module in (projects, tree, panels, balance, transformers, warnings, sheets, growth, pdf, api):
+    for module in (projects, tree, panels, comments, balance, transformers, warnings, sheets, growth, pdf, api):
         app.include_router(module.router, dependencies=DEFAULT_RULE)
     if settings.bench_endpoints:
         from server.web.routes import bench

@@ -46,6 +46,7 @@ def _samples(app, pid: int) -> dict[str, str]:
         "circuit_id": str(app.state.services.first_circuit_id(pid)),
         "mid": "999999",
         "job_id": "no-such-job",
+        "comment_id": "999999",
     }
 
 
