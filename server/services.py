@@ -196,52 +196,63 @@ def _sync_project(session: Session, row: db.Project, model: Project) -> None:
     for n in _INFO_FIELDS:
         _set(row, n, getattr(model.project, n))
 
-    by_tag = {s.tag: s for s in row.sources}
-    keep: list[db.Source] = []
-    for i, s in enumerate(model.sources):
-        r = by_tag.pop(s.tag, None) or db.Source(project=row, tag=s.tag)
+    row.sources = _sync_by_tag(
+        session, row.sources, model.sources, lambda e: db.Source(project=row, tag=e.tag), _SOURCE_FIELDS
+    )
+    row.transformers = _sync_by_tag(
+        session,
+        row.transformers,
+        model.transformers,
+        lambda e: db.Transformer(project=row, tag=e.tag),
+        _TRANSFORMER_FIELDS,
+        lambda r, t: _set_feeder(r, t.feeder),
+    )
+    row.panels = _sync_by_tag(
+        session,
+        row.panels,
+        model.panels,
+        lambda e: db.Panel(project=row, tag=e.tag),
+        _PANEL_FIELDS,
+        lambda r, p: _sync_panel_rows(session, r, p),
+    )
+
+
+def _sync_by_tag(
+    session: Session,
+    rows: list[Any],
+    elements: tuple[Any, ...],
+    make: Any,
+    names: tuple[str, ...],
+    extra: Any = None,
+) -> list[Any]:
+    """Rows matching ``elements`` by tag, in model order: updated in place, made, or deleted."""
+    by_tag = {r.tag: r for r in rows}
+    keep: list[Any] = []
+    for i, e in enumerate(elements):
+        r = by_tag.pop(e.tag, None) or make(e)
         r.position = i
-        for n in _SOURCE_FIELDS:
-            _set(r, n, getattr(s, n))
+        for n in names:
+            _set(r, n, getattr(e, n))
+        if extra is not None:
+            extra(r, e)
         keep.append(r)
     for r in by_tag.values():
         session.delete(r)
-    row.sources = keep
+    return keep
 
-    tby_tag = {t.tag: t for t in row.transformers}
-    tkeep: list[db.Transformer] = []
-    for i, t in enumerate(model.transformers):
-        r = tby_tag.pop(t.tag, None) or db.Transformer(project=row, tag=t.tag)
-        r.position = i
-        for n in _TRANSFORMER_FIELDS:
-            _set(r, n, getattr(t, n))
-        _set_feeder(r, t.feeder)
-        tkeep.append(r)
-    for r in tby_tag.values():
-        session.delete(r)
-    row.transformers = tkeep
 
-    pby_tag = {p.tag: p for p in row.panels}
-    pkeep: list[db.Panel] = []
-    for i, p in enumerate(model.panels):
-        r = pby_tag.pop(p.tag, None) or db.Panel(project=row, tag=p.tag)
-        r.position = i
-        for n in _PANEL_FIELDS:
-            _set(r, n, getattr(p, n))
-        _set_feeder(r, p.feeder)
-        by_slot = {c.slot: c for c in r.circuits}
-        ckeep: list[db.Circuit] = []
-        for c in p.circuits:
-            cr = by_slot.pop(c.slot, None) or db.Circuit(panel=r, slot=c.slot, version=1)
-            _apply_circuit(cr, c)
-            ckeep.append(cr)
-        for cr in by_slot.values():
-            session.delete(cr)
-        r.circuits = ckeep
-        pkeep.append(r)
-    for r in pby_tag.values():
-        session.delete(r)
-    row.panels = pkeep
+def _sync_panel_rows(session: Session, r: db.Panel, p: Panel) -> None:
+    """A panel's feeder columns and its circuits (matched by slot; a changed circuit's version bumps)."""
+    _set_feeder(r, p.feeder)
+    by_slot = {c.slot: c for c in r.circuits}
+    ckeep: list[db.Circuit] = []
+    for c in p.circuits:
+        cr = by_slot.pop(c.slot, None) or db.Circuit(panel=r, slot=c.slot, version=1)
+        _apply_circuit(cr, c)
+        ckeep.append(cr)
+    for cr in by_slot.values():
+        session.delete(cr)
+    r.circuits = ckeep
 
 
 # --------------------------------------------------------------------------- cache
