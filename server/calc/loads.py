@@ -25,6 +25,7 @@ import math
 from collections.abc import Iterable, Mapping
 from functools import lru_cache
 
+from .errors import CalcError
 from .systems import SQRT3, SystemKind, SystemSpec, breaker_phases
 
 #: e^{−j30°}: the ANSI standard angular displacement (the low-voltage side lags the
@@ -304,3 +305,20 @@ def reflect_triplens(
         p = primary_phases[0]
         return {p: i3}, i3 * triplen_rotation(primary, p)
     return {p: v / n for p, v in line_i3.items()}, neutral_i3 / n
+
+
+def va_from_amps(current_a: float, poles: int, spec: SystemSpec) -> float:
+    """Apparent power of a load given its current, at the nominal voltages of the system string.
+
+    Formula (common practice; nominal voltages per ANSI C84.1): 1-pole VA = I × V_LN,
+    2-pole VA = I × V_LL, 3-pole VA = √3 × V_LL × I.  Raises :class:`CalcError` for a 1-pole
+    load on a system without a neutral.
+    """
+    v_ll = spec.nominal_v_ll()
+    if poles <= 1:
+        if spec.v_ln is None:
+            raise CalcError(f"a 1-pole load current cannot be converted on {spec.name}: it has no neutral")
+        return current_a * spec.v_ln
+    if poles == 2:
+        return current_a * v_ll
+    return current_a * SQRT3 * v_ll

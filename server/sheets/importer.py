@@ -21,10 +21,11 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, replace
 from enum import StrEnum
 
-from server.calc.errors import Problem
+from server.calc.errors import CalcError, Problem
+from server.calc.loads import va_from_amps
 from server.calc.model import Category, Circuit, Panel, Project
 from server.calc.projectfile import check_panel, check_topology, parse_circuit
-from server.calc.systems import SQRT3, SYSTEMS, SystemSpec, breaker_phases
+from server.calc.systems import SYSTEMS, SystemSpec, breaker_phases
 
 from .mapping import LOAD_ROLES, ColumnMap, Role, normalise, to_number
 from .reader import CellValue, Grid
@@ -259,19 +260,12 @@ def parse_phases(value: CellValue) -> tuple[str, ...] | None:
 
 
 def amps_to_va(amps: float, poles: int, spec: SystemSpec) -> float | str:
-    """Load current to VA from the panel voltage.
-
-    Formula (common practice, nominal voltages from the system string, ANSI C84.1):
-    1-pole: VA = I × V_LN; 2-pole: VA = I × V_LL; 3-pole: VA = √3 × V_LL × I.
-    """
-    v_ll = spec.nominal_v_ll()
-    if poles <= 1:
-        if spec.v_ln is None:
-            return f"a 1-pole load current cannot be converted on {spec.name}: it has no neutral"
-        return amps * spec.v_ln
-    if poles == 2:
-        return amps * v_ll
-    return amps * SQRT3 * v_ll
+    """Load current to VA from the panel voltage (the engine's :func:`server.calc.loads.va_from_amps`);
+    a problem comes back as its message for the preview cell."""
+    try:
+        return va_from_amps(amps, poles, spec)
+    except CalcError as exc:
+        return str(exc)
 
 
 # --------------------------------------------------------------------------- rows

@@ -12,6 +12,7 @@ import math
 
 import pytest
 
+from server.calc.errors import CalcError
 from server.calc.loads import (
     circuit_currents,
     circuit_phase_va,
@@ -22,6 +23,7 @@ from server.calc.loads import (
     reflect_through_transformer,
     reflect_triplens,
     triplen_rotation,
+    va_from_amps,
 )
 from server.calc.systems import SQRT3, SYSTEMS
 from tests.helpers import assert_close
@@ -233,3 +235,22 @@ def test_wye_delta_unbalanced_line_to_line_load() -> None:
     assert sorted(abs(v) for v in prim.values()) == pytest.approx(
         sorted([10 / 3 / n, 10 / 3 / n, 20 / 3 / n]), rel=1e-9
     )
+
+
+@pytest.mark.parametrize(
+    ("system", "poles", "amps", "expected_va"),
+    [
+        # common practice: 1-pole VA = I × V_LN, 2-pole VA = I × V_LL, 3-pole VA = √3 × V_LL × I (nominal voltages)
+        ("208Y/120 3PH 4W", 1, 10.0, 1200.0),
+        ("208Y/120 3PH 4W", 2, 10.0, 2080.0),
+        ("480Y/277 3PH 4W", 3, 10.0, 8313.8),
+        ("120/240 1PH 3W", 2, 10.0, 2400.0),
+    ],
+)
+def test_va_from_amps_uses_nominal_voltages(system, poles, amps, expected_va) -> None:
+    assert_close(va_from_amps(amps, poles, SYSTEMS[system]), expected_va, rel=1e-4)
+
+
+def test_va_from_amps_refuses_a_one_pole_load_without_a_neutral() -> None:
+    with pytest.raises(CalcError, match="no neutral"):
+        va_from_amps(10.0, 1, SYSTEMS["480 3PH 3W"])
