@@ -728,7 +728,7 @@ class Services:
             with self.sessions() as s:
                 entry = self._rebuild(s, snap.project_id)
         else:
-            result = entry.calculator.update_panel(new_panel)
+            result = entry.calculator.update_panel(new_panel, checked_project=new_model)
             panel_versions = {k: v for k, v in entry.versions.get(new_panel.tag, {}).items() if k != slot}
             if new_version is not None:
                 panel_versions[slot] = new_version

@@ -1044,102 +1044,119 @@ class Calculator:
 
     # ---- step 4: top-down pass
 
-    def _top_down(self) -> None:
+    def _top_down(self, dirty: set[_Node] | None = None) -> None:
         """Cumulative voltage drop and fault current, parents first.
 
         A node is revisited only when its own local result or its parent's bus values
         (cumulative drop, impedance) changed, so an incremental update touches the edited
-        branch and whatever hangs below a feeder whose drop moved.
+        branch and whatever hangs below a feeder whose drop moved.  With ``dirty`` (the nodes
+        whose local result may have changed, each with its ancestors), a subtree holding no
+        dirty node under an unchanged bus is skipped whole instead of being walked.
         """
-        info = self.project.project
-        limit = info.vd_total_pct
-        for node in self.order:
-            local = node.local
-            assert local is not None
-            parent = node.parent
-            prev = node.final_key
-            if parent is None:
-                if prev is not None and prev[0] is local:
-                    node.bus_changed = False
-                    continue
-                s: Source = node.element  # type: ignore[assignment]
-                spec = node.spec
-                v = spec.nominal_v_ll() if spec.three_phase else spec.nominal_v_ll() * SQRT3
-                # Single-phase source: the loop impedance V/I_sc (source_impedance divides by √3).
-                z = _faults.source_impedance(v, s.fault_ka, s.x_over_r)
-                node.bus_changed = prev is None or z != node.z_bus
-                node.z_bus = z
-                node.cum_vd = 0.0
-                node.final = local.result
-                self._reissued.append(node)
-                node.final_key = (local,)
-                node.final_by_severity = ()
-                node.final_warnings = ()
-                continue
-            if prev is not None and prev[0] is local and not parent.bus_changed:
+        limit = self.project.project.vd_total_pct
+        if dirty is None:
+            for node in self.order:
+                self._settle(node, limit)
+            return
+        stack = list(reversed(self.roots))
+        while stack:
+            node = stack.pop()
+            self._settle(node, limit)
+            bus_changed = node.bus_changed
+            for child in reversed(node.children):
+                if bus_changed or child in dirty or child.final_key is None or child.final_key[0] is not child.local:
+                    stack.append(child)
+                else:
+                    child.bus_changed = False  # unchanged, and so is everything below it
+
+    def _settle(self, node: _Node, limit: float) -> None:
+        """One node of the top-down pass (see :meth:`_top_down`); its parent is already settled."""
+        local = node.local
+        assert local is not None
+        parent = node.parent
+        prev = node.final_key
+        if parent is None:
+            if prev is not None and prev[0] is local:
                 node.bus_changed = False
-                continue
-            feeder = local.feeder
-            total_vd = parent.cum_vd + (feeder.voltage_drop_pct if feeder is not None else 0.0)
-            if node.kind == "panel":
-                z = parent.z_bus + local.z_feeder * (1.0 if node.spec.three_phase else 2.0)
-            else:
-                z = self._secondary_z(node, parent.z_bus, local.z_feeder)
-            if prev is not None and prev[0] is local and prev[1] == total_vd and z == node.z_bus:
-                node.bus_changed = False
-                continue
-            node.bus_changed = True
-            node.cum_vd = total_vd
-            if prev is not None and z == node.z_bus and prev[3] is not None:
-                fault_ka = prev[2]
-            else:
-                fault = _faults.bolted_fault_ka(z, node.spec)
-                fault_ka = None if math.isinf(fault) else fault
+                return
+            s: Source = node.element  # type: ignore[assignment]
+            spec = node.spec
+            v = spec.nominal_v_ll() if spec.three_phase else spec.nominal_v_ll() * SQRT3
+            # Single-phase source: the loop impedance V/I_sc (source_impedance divides by √3).
+            z = _faults.source_impedance(v, s.fault_ka, s.x_over_r)
+            node.bus_changed = prev is None or z != node.z_bus
             node.z_bus = z
-            node.final_key = (local, total_vd, fault_ka, True)
-            extra: list[CalcWarning] = []
-            tag = node.tag
-            if feeder is not None and total_vd > limit + 1e-9:
+            node.cum_vd = 0.0
+            node.final = local.result
+            self._reissued.append(node)
+            node.final_key = (local,)
+            node.final_by_severity = ()
+            node.final_warnings = ()
+            return
+        if prev is not None and prev[0] is local and not parent.bus_changed:
+            node.bus_changed = False
+            return
+        feeder = local.feeder
+        total_vd = parent.cum_vd + (feeder.voltage_drop_pct if feeder is not None else 0.0)
+        if node.kind == "panel":
+            z = parent.z_bus + local.z_feeder * (1.0 if node.spec.three_phase else 2.0)
+        else:
+            z = self._secondary_z(node, parent.z_bus, local.z_feeder)
+        if prev is not None and prev[0] is local and prev[1] == total_vd and z == node.z_bus:
+            node.bus_changed = False
+            return
+        node.bus_changed = True
+        node.cum_vd = total_vd
+        if prev is not None and z == node.z_bus and prev[3] is not None:
+            fault_ka = prev[2]
+        else:
+            fault = _faults.bolted_fault_ka(z, node.spec)
+            fault_ka = None if math.isinf(fault) else fault
+        node.z_bus = z
+        node.final_key = (local, total_vd, fault_ka, True)
+        extra: list[CalcWarning] = []
+        tag = node.tag
+        if feeder is not None and total_vd > limit + 1e-9:
+            extra.append(
+                CalcWarning(
+                    WarningCode.VOLTAGE_DROP_TOTAL,
+                    f"{tag}: cumulative voltage drop {total_vd:.2f} % from the source exceeds {limit:g} % "
+                    f"({self.code.value} {self._vd_note} recommendation for feeder and branch circuit)",
+                    tag,
+                )
+            )
+        new_feeder = _evolve(feeder, cumulative_voltage_drop_pct=total_vd) if feeder is not None else None
+        if node.kind == "panel":
+            panel: Panel = node.element  # type: ignore[assignment]
+            if panel.sccr_ka is not None and fault_ka is not None and fault_ka > panel.sccr_ka + 1e-9:
                 extra.append(
                     CalcWarning(
-                        WarningCode.VOLTAGE_DROP_TOTAL,
-                        f"{tag}: cumulative voltage drop {total_vd:.2f} % from the source exceeds {limit:g} % "
-                        f"({self.code.value} {self._vd_note} recommendation for feeder and branch circuit)",
+                        WarningCode.SCCR_LOW,
+                        f"{tag}: available fault current {fault_ka:.1f} kA exceeds the panel's "
+                        f"{panel.sccr_ka:g} kA short-circuit current rating ({self.code.value} 110.9 / 110.10)",
                         tag,
+                        None,
+                        Severity.ERROR,
                     )
                 )
-            new_feeder = _evolve(feeder, cumulative_voltage_drop_pct=total_vd) if feeder is not None else None
-            if node.kind == "panel":
-                panel: Panel = node.element  # type: ignore[assignment]
-                if panel.sccr_ka is not None and fault_ka is not None and fault_ka > panel.sccr_ka + 1e-9:
-                    extra.append(
-                        CalcWarning(
-                            WarningCode.SCCR_LOW,
-                            f"{tag}: available fault current {fault_ka:.1f} kA exceeds the panel's "
-                            f"{panel.sccr_ka:g} kA short-circuit current rating ({self.code.value} 110.9 / 110.10)",
-                            tag,
-                            None,
-                            Severity.ERROR,
-                        )
-                    )
-                warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
-                node.final = _evolve(
-                    local.result,
-                    feeder=new_feeder,
-                    fault_ka=fault_ka,
-                    fault_x_over_r=_faults.x_over_r(z),
-                    warnings=warnings,
-                )
-            else:
-                warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
-                node.final = _evolve(local.result, feeder=new_feeder, secondary_fault_ka=fault_ka, warnings=warnings)
-            self._reissued.append(node)
-            if warnings is not node.final_warnings:
-                node.final_warnings = warnings
-                groups = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
-                if groups != node.final_by_severity:
-                    node.final_by_severity = groups
-                    self._warnings_dirty = True
+            warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
+            node.final = _evolve(
+                local.result,
+                feeder=new_feeder,
+                fault_ka=fault_ka,
+                fault_x_over_r=_faults.x_over_r(z),
+                warnings=warnings,
+            )
+        else:
+            warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
+            node.final = _evolve(local.result, feeder=new_feeder, secondary_fault_ka=fault_ka, warnings=warnings)
+        self._reissued.append(node)
+        if warnings is not node.final_warnings:
+            node.final_warnings = warnings
+            groups = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
+            if groups != node.final_by_severity:
+                node.final_by_severity = groups
+                self._warnings_dirty = True
 
     def _feeder_z(self, feeder: FeederResult | None) -> complex:
         if feeder is None or feeder.length_ft <= 0:
@@ -1231,23 +1248,32 @@ class Calculator:
         self.roots = []
         self.by_tag = []
 
-    def update_panel(self, panel: Panel) -> ProjectResult:
+    def update_panel(self, panel: Panel, *, checked_project: Project | None = None) -> ProjectResult:
         """Replace one panel (same tag) and recompute incrementally; identical to a full compute.
 
         The panel is checked first (:func:`server.calc.projectfile.check_panel`).  A change of
         the tree (what the panel feeds, the poles or status of a feeding breaker, its system or
         ``fed_from``) rebuilds the whole project after the topology check; anything else
         recomputes the panel, its ancestors and the top-down pass only.
+
+        ``checked_project``: a caller that has already run ``check_panel`` on ``panel`` (and
+        ``check_topology`` when a feeding breaker changed) passes the project it built with
+        :func:`server.calc.projectfile.replace_panel`, so the checks are not run twice.
         """
         node = self.nodes.get(panel.tag)
         if node is None or node.kind != "panel":
             raise ProjectFileError([Problem("is not a panel of this project", panel.tag)])
         problems: list[Problem] = []
-        check_panel(panel, problems)
-        if problems:
-            raise ProjectFileError(problems)
+        if checked_project is None:
+            check_panel(panel, problems)
+            if problems:
+                raise ProjectFileError(problems)
+            new_project = replace_panel(self.project, panel)
+        else:
+            if checked_project.panel(panel.tag) is not panel:
+                raise ValueError("checked_project does not hold this panel")
+            new_project = checked_project
         old: Panel = node.element  # type: ignore[assignment]
-        new_project = replace_panel(self.project, panel)
         if _tree_signature(old) != _tree_signature(panel) or old.fed_from != panel.fed_from:
             check_topology(new_project, problems)
             if problems:
@@ -1259,17 +1285,20 @@ class Calculator:
         _own_circuits(node, self.include_future, self.code.value)
         # The feeding breakers' ratings may have changed: their children's feeders follow.
         by_slot = {c.feeds: c for c in panel.circuits if c.feeds is not None and c.poles > 0}
+        dirty: set[_Node] = set()
         for child in node.children:
             new_via = by_slot[child.tag]
             if new_via != child.via:
                 child.via = new_via
                 self._local(child)
+                dirty.add(child)
         n: _Node | None = node
         while n is not None:
             self._aggregate(n)
             self._local(n)
+            dirty.add(n)
             n = n.parent
-        self._top_down()
+        self._top_down(dirty)
         self._assemble()
         return self._result
 

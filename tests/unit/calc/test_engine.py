@@ -349,6 +349,22 @@ def test_update_panel_equals_full_compute(project) -> None:
     assert calc.update_panel(moved) == compute_project(replace_panel(calc.project, moved))
 
 
+def test_update_panel_with_a_prechecked_project(project) -> None:
+    # The web service checks the panel and builds the new project itself, then hands both over.
+    calc = Calculator(project)
+    lp2 = project.panel("LP-2")
+    assert lp2 is not None
+    edited = replace(lp2, circuits=(replace(lp2.circuits[0], va=4_321.0), *lp2.circuits[1:]))
+    new_project = replace_panel(project, edited)
+    assert calc.update_panel(edited, checked_project=new_project) == compute_project(new_project)
+    assert calc.project is new_project
+    # A project that does not hold this very panel is a programming error, refused before anything changes.
+    other = replace(edited, circuits=(replace(lp2.circuits[0], va=1.0), *lp2.circuits[1:]))
+    with pytest.raises(ValueError):
+        calc.update_panel(other, checked_project=new_project)
+    assert calc.project is new_project
+
+
 def test_update_panel_leaves_earlier_results_unchanged(project) -> None:
     # A result handed out before an edit (an older snapshot) keeps its values; the new result lists
     # the elements in the project's order, as a full compute does.
