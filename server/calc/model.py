@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from enum import StrEnum
+from functools import cached_property
 
 FORMAT_NAME = "panelwright.project"
 FORMAT_VERSION = 1
@@ -239,23 +240,30 @@ class Project:
     transformers: tuple[Transformer, ...] = ()
     panels: tuple[Panel, ...] = ()
 
-    def panel(self, tag: str) -> Panel | None:
+    # Lookups by tag go through an index built on first use (a project is immutable, and every
+    # edit makes a new one); the first element wins if a not-yet-validated file repeats a tag.
+
+    @cached_property
+    def _by_tag(self) -> tuple[dict[str, Source], dict[str, Transformer], dict[str, Panel]]:
+        sources: dict[str, Source] = {}
+        transformers: dict[str, Transformer] = {}
+        panels: dict[str, Panel] = {}
+        for s in self.sources:
+            sources.setdefault(s.tag, s)
+        for t in self.transformers:
+            transformers.setdefault(t.tag, t)
         for p in self.panels:
-            if p.tag == tag:
-                return p
-        return None
+            panels.setdefault(p.tag, p)
+        return sources, transformers, panels
+
+    def panel(self, tag: str) -> Panel | None:
+        return self._by_tag[2].get(tag)
 
     def transformer(self, tag: str) -> Transformer | None:
-        for t in self.transformers:
-            if t.tag == tag:
-                return t
-        return None
+        return self._by_tag[1].get(tag)
 
     def source(self, tag: str) -> Source | None:
-        for s in self.sources:
-            if s.tag == tag:
-                return s
-        return None
+        return self._by_tag[0].get(tag)
 
 
 @dataclass(frozen=True)

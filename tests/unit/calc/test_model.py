@@ -1,0 +1,43 @@
+"""The project model's lookups by tag (server.calc.model.Project)."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+from server.calc.model import Panel, Project, ProjectInfo, Source, Transformer
+
+
+def _project() -> Project:
+    return Project(
+        ProjectInfo(name="Lookup check"),
+        sources=(Source("S1", "480Y/277"),),
+        transformers=(Transformer("T1", 75.0, "480Y/277", "208Y/120", fed_from="MDP"),),
+        panels=(Panel("MDP", "480Y/277", fed_from="S1"), Panel("LP1", "208Y/120", fed_from="T1")),
+    )
+
+
+def test_lookups_find_each_kind_by_tag() -> None:
+    p = _project()
+    assert p.source("S1") is p.sources[0]
+    assert p.transformer("T1") is p.transformers[0]
+    assert p.panel("LP1") is p.panels[1]
+    # A tag of another kind is not found under the wrong kind.
+    assert p.panel("T1") is None and p.transformer("LP1") is None and p.source("MDP") is None
+    assert p.panel("nowhere") is None
+
+
+def test_a_replaced_project_looks_up_its_own_elements() -> None:
+    p = _project()
+    assert p.panel("LP1") is not None  # builds the first project's index
+    new_lp1 = Panel("LP1", "208Y/120", fed_from="T1", bus_amps=400)
+    q = replace(p, panels=(p.panels[0], new_lp1))
+    assert q.panel("LP1") is new_lp1
+    assert p.panel("LP1") is p.panels[1]  # the earlier project is unchanged
+    assert q != p and replace(q) == q
+
+
+def test_a_repeated_tag_finds_the_first_as_a_scan_would() -> None:
+    # Only an unvalidated file can repeat a tag (parse_project refuses it); lookups stay predictable.
+    first, second = Panel("LP1", "208Y/120"), Panel("LP1", "480Y/277")
+    p = Project(ProjectInfo(name="Repeat"), panels=(first, second))
+    assert p.panel("LP1") is first
