@@ -6,11 +6,16 @@
   ``templates/pdf/`` and the WeasyPrint version) and the sheet's rendered HTML.  Re-issuing after
   one edit re-renders only the sheets whose HTML changed (the edited panel, the panels and
   sheets whose printed values changed with it, and the index); the rest come from the cache.
-* The shared stylesheet is parsed once per process and passed to WeasyPrint, not inlined.
+* The shared stylesheet is parsed once per process and passed to WeasyPrint, not inlined; each
+  thread keeps one font configuration across its renders (fonts found and measured once).
+* The cyclic garbage collector is paused while a sheet renders and the young generation is
+  collected right after: WeasyPrint allocates so many objects that automatic collections,
+  full ones included, would otherwise run during every sheet and walk the whole process heap.
 """
 
 from __future__ import annotations
 
+import gc
 import hashlib
 import io
 import multiprocessing
@@ -18,9 +23,10 @@ import os
 import tempfile
 import threading
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
+from contextlib import contextmanager
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
@@ -164,15 +170,68 @@ def _stylesheet():  # type: ignore[no-untyped-def]
     return CSS(filename=str(STYLESHEET))
 
 
+_fonts = threading.local()
+
+
+def _font_config():  # type: ignore[no-untyped-def]
+    """This thread's WeasyPrint font configuration, made once and reused by every render.
+
+    A fresh one per render (WeasyPrint's default) loads the Fontconfig set again and starts an
+    empty Pango font map and line-height cache.  Per thread because Pango font maps are not
+    thread-safe; per process id because a forked worker must not share its parent's."""
+    pid = os.getpid()
+    if getattr(_fonts, "pid", None) != pid:
+        from weasyprint.text.fonts import FontConfiguration
+
+        _fonts.config, _fonts.pid = FontConfiguration(), pid
+    return _fonts.config
+
+
+_gc_lock = threading.Lock()
+_gc_renders = 0  # renders in progress in this process
+_gc_was_enabled = False
+
+
+@contextmanager
+def _collector_paused() -> Iterator[None]:
+    """Pause automatic garbage collection during a render; collect the young generation after.
+
+    With collection paused, everything the render allocates stays in the young generation, so
+    ``gc.collect(0)`` afterwards frees all of its reference cycles while walking only those
+    objects (not the long-lived heap a full collection walks).  The collection is part of the
+    render's own time.  Counted so that concurrent renders in threads re-enable it once, and
+    left alone when the caller had already disabled it."""
+    global _gc_renders, _gc_was_enabled
+    with _gc_lock:
+        if _gc_renders == 0:
+            _gc_was_enabled = gc.isenabled()
+            gc.disable()
+        _gc_renders += 1
+    try:
+        yield
+    finally:
+        with _gc_lock:
+            _gc_renders -= 1
+            last = _gc_renders == 0
+            if last:
+                gc.collect(0)
+                if _gc_was_enabled:
+                    gc.enable()
+
+
 def html_to_pdf(html: str) -> bytes:
     """One sheet's HTML → PDF bytes (runs in a worker process or in-process)."""
     from weasyprint import HTML
 
-    return HTML(string=html, base_url=str(PDF_TEMPLATES)).write_pdf(stylesheets=[_stylesheet()])
+    with _collector_paused():
+        return HTML(string=html, base_url=str(PDF_TEMPLATES)).write_pdf(
+            stylesheets=[_stylesheet()], font_config=_font_config()
+        )
 
 
 def _warm() -> None:
     _stylesheet()
+    _font_config()
 
 
 def _mp_context() -> multiprocessing.context.BaseContext:
