@@ -259,6 +259,20 @@ class Project:
     def panel(self, tag: str) -> Panel | None:
         return self._by_tag[2].get(tag)
 
+    def with_panel(self, panel: Panel) -> Project:
+        """A copy with the panel of the same tag replaced; the tag index, when built, is carried
+        over with that one entry changed instead of being rebuilt (an edit's path)."""
+        new = Project(
+            self.project,
+            self.sources,
+            self.transformers,
+            tuple(panel if p.tag == panel.tag else p for p in self.panels),
+        )
+        index = self.__dict__.get("_by_tag")
+        if index is not None and panel.tag in index[2]:
+            new.__dict__["_by_tag"] = (index[0], index[1], {**index[2], panel.tag: panel})
+        return new
+
     def transformer(self, tag: str) -> Transformer | None:
         return self._by_tag[1].get(tag)
 

@@ -772,12 +772,7 @@ def loads_project(text: str, *, source: str | None = None) -> Project:
 
 def replace_panel(project: Project, panel: Panel) -> Project:
     """A copy of ``project`` with the panel of the same tag replaced."""
-    return Project(
-        project.project,
-        project.sources,
-        project.transformers,
-        tuple(panel if p.tag == panel.tag else p for p in project.panels),
-    )
+    return project.with_panel(panel)
 
 
 ProblemSink = Callable[[Problem], None]

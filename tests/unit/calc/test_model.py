@@ -41,3 +41,18 @@ def test_a_repeated_tag_finds_the_first_as_a_scan_would() -> None:
     first, second = Panel("LP1", "208Y/120"), Panel("LP1", "480Y/277")
     p = Project(ProjectInfo(name="Repeat"), panels=(first, second))
     assert p.panel("LP1") is first
+
+
+def test_with_panel_keeps_lookups_right() -> None:
+    p = _project()
+    new_lp1 = Panel("LP1", "208Y/120", fed_from="T1", spaces=30)
+    for warm in (False, True):  # with and without the first project's index already built
+        base = _project()
+        if warm:
+            assert base.panel("MDP") is base.panels[0]
+        q = base.with_panel(new_lp1)
+        assert q.panels == (base.panels[0], new_lp1)
+        assert q.panel("LP1") is new_lp1 and q.panel("MDP") is base.panels[0]
+        assert q.transformer("T1") is base.transformers[0] and q.source("S1") is base.sources[0]
+        assert base.panel("LP1") is base.panels[1]
+        assert q == replace(p, panels=(p.panels[0], new_lp1))
