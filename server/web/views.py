@@ -275,8 +275,11 @@ def panel_rows(
     override_slot: int | None = None,
     override_values: dict[str, str] | None = None,
     errors: dict[str, str] | None = None,
+    only_rows: range | None = None,
 ) -> list[PairRow]:
-    """The panelboard laid out as the trade reads it; ``override_*`` show a rejected edit as typed."""
+    """The panelboard laid out as the trade reads it; ``override_*`` show a rejected edit as typed.
+
+    ``only_rows``: build just these pair rows (numbered from 1), as an edit's answer needs."""
     spec = SYSTEMS.get(panel.system)
     by_slot = {c.slot: c for c in panel.circuits}
     res = {c.slot: c for c in result.circuits} if result else {}
@@ -306,7 +309,10 @@ def panel_rows(
         return SideCell("empty", slot, side)
 
     rows = []
-    for n in range(1, n_rows + 1):
+    wanted = range(1, n_rows + 1)
+    if only_rows is not None:
+        wanted = range(max(1, only_rows.start), min(n_rows, only_rows.stop - 1) + 1)
+    for n in wanted:
         phase = slot_phase(spec, 2 * n - 1) if spec else "?"
         rows.append(PairRow(n, phase, cell(2 * n - 1, "L"), cell(2 * n, "R")))
     return rows
@@ -355,14 +361,20 @@ def panel_context(
     errors: dict[str, str] | None = None,
     header_values: dict[str, str] | None = None,
     header_errors: dict[str, str] | None = None,
+    near_slot: int | None = None,
 ) -> PanelContext:
+    """The panel editor's context; with ``near_slot``, only what an edit's answer swaps in: the
+    pair rows a breaker at that slot can span (no header form values)."""
     panel = snap.model.panel(tag)
     assert panel is not None
     result = snap.result.panels.get(tag)
     spec = SYSTEMS.get(panel.system)
-    rows = panel_rows(panel, result, override_slot=override_slot, override_values=override_values, errors=errors)
+    only = None if near_slot is None else range((near_slot + 1) // 2, (near_slot + 1) // 2 + 3)
+    rows = panel_rows(
+        panel, result, override_slot=override_slot, override_values=override_values, errors=errors, only_rows=only
+    )
     chain = list(reversed(ancestors_of(snap, tag)))
-    hv = panel_header_values(panel)
+    hv = panel_header_values(panel) if near_slot is None else {}
     hv.update(header_values or {})
     row_error = (errors or {}).get("", "") or (errors or {}).get("slot", "") or (errors or {}).get("feeds", "")
     return PanelContext(

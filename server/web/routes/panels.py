@@ -174,7 +174,7 @@ def _edit_response(
     error_fields: list[str] | None = None,
     status_code: int = 200,
 ) -> Response:
-    ctx = ctx or panel_context(snap, tag)
+    ctx = ctx or panel_context(snap, tag, near_slot=slot)
     rows: list = []
     cells: list = []
     cell = _cell(ctx, slot)
