@@ -30,6 +30,14 @@ class Settings(BaseSettings):
     bench_endpoints: bool = Field(
         False, description="Adds the bare benchmark endpoint used by tests/benchmarks/bench_web.py (off in production)"
     )
+    gc_young_threshold: int = Field(
+        20_000,
+        ge=0,
+        description=(
+            "Young-generation threshold of Python's garbage collector in the serving process "
+            "(0 keeps Python's default; read by server/web/serving.py)"
+        ),
+    )
     calc_cache_size: int = Field(
         8, ge=0, description="How many projects keep an in-memory calculator for incremental recompute"
     )

@@ -22,6 +22,7 @@ def command(host: str | None, port: int | None, single_user: bool | None) -> Non
     import uvicorn
 
     from server.web.app import create_app
+    from server.web.serving import prepare_process
 
     settings = Settings()
     settings = settings.model_copy(update={"host": host or settings.host, "port": port or settings.port})
@@ -35,4 +36,5 @@ def command(host: str | None, port: int | None, single_user: bool | None) -> Non
     click.echo(f"Panelwright on http://{settings.host}:{settings.port}/  (database {settings.database_url})", err=True)
     click.echo(CAUTION, err=True)
     start_team_tasks(settings)
+    prepare_process(settings)
     uvicorn.run(app, host=settings.host, port=settings.port, log_level=settings.log_level)

@@ -32,6 +32,7 @@ from server.calc.projectfile import dump_project
 from server.config import Settings
 from server.db import migrate
 from server.web.app import create_app
+from server.web.serving import prepare_process
 from tests.benchmarks.generate import generate_project
 
 EDITS = 300
@@ -58,7 +59,9 @@ def run(edits: int = EDITS) -> dict[str, float]:
         url = f"sqlite:///{Path(tmp) / 'bench.db'}"
         migrate.upgrade(url)
         # single_user: no sign-in on this loopback-only server (ignored where team use is absent).
-        app = create_app(Settings(database_url=url, bench_endpoints=True, single_user=True))
+        settings = Settings(database_url=url, bench_endpoints=True, single_user=True)
+        app = create_app(settings)
+        prepare_process(settings)  # as `panelwright serve` does before its first request
         svc = app.state.services
         t0 = time.perf_counter()
         project = generate_project()
