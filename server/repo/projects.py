@@ -63,9 +63,10 @@ def claim_next_version(session: Session, *, project_id: int) -> int | None:
         .where(Project.id == project_id)
         .values(data_version=Project.data_version + 1, updated_at=utcnow())
         .returning(Project.data_version)
-        .execution_options(synchronize_session=False)
     )
-    return session.execute(stmt).scalar()
+    # On the session's connection (same transaction): a plain UPDATE, without the ORM's bulk-update
+    # bookkeeping, on the hot path of every circuit edit.  No Project object is in this session yet.
+    return session.connection().execute(stmt).scalar()
 
 
 def bump_data_version(session: Session, *, project_id: int, expected: int) -> bool:
