@@ -39,6 +39,13 @@ def va_as_kva(value: float | None, digits: int = 1) -> str:
     return kva(value / 1000.0, digits)
 
 
+def number(value: float | None, digits: int = 0) -> str:
+    """A plain number with thousands separators: 1234.5 → "1,235" (digits=0)."""
+    if _bad(value):
+        return DASH
+    return f"{value:,.{digits}f}"
+
+
 def amps(value: float | None, digits: int = 1) -> str:
     """Amperes with one decimal: 123.4."""
     if _bad(value):
@@ -100,6 +107,7 @@ FILTERS: Mapping[str, Any] = {
     "va": va,
     "kva": kva,
     "va_as_kva": va_as_kva,
+    "number": number,
     "amps": amps,
     "pct": pct,
     "ka": ka,

@@ -11,6 +11,7 @@ from urllib.parse import quote
 
 from fastapi.templating import Jinja2Templates
 
+from server import formatting
 from server.calc.results import Severity
 from server.commands import CAUTION
 
@@ -74,22 +75,21 @@ class Urls:
         return f"/static/{path}"
 
 
+# The screens' number filters are the shared ones of server.formatting (the CLI report and the
+# PDF set print with the same functions); only their names and default digits are the screens'.
+
+
 def fmt_kva(va: float | None, digits: int = 1) -> str:
-    if va is None:
-        return "—"
-    return f"{va / 1000.0:,.{digits}f}"
+    """VA shown in kVA (the screens' ``kva`` filter)."""
+    return formatting.va_as_kva(va, digits)
 
 
 def fmt_num(x: float | None, digits: int = 0) -> str:
-    if x is None:
-        return "—"
-    return f"{x:,.{digits}f}"
+    return formatting.number(x, digits)
 
 
 def fmt_pct(x: float | None, digits: int = 0) -> str:
-    if x is None:
-        return "—"
-    return f"{x:.{digits}f} %"
+    return formatting.pct(x, digits)
 
 
 def fmt_value(x: Any) -> str:
