@@ -22,7 +22,7 @@ from typing import Any, Literal
 from pydantic import TypeAdapter
 
 from server.calc.model import FORMAT_NAME, FORMAT_VERSION, Panel, ProjectInfo, Source, Transformer
-from server.calc.projectfile import MAX_POLES, MAX_SPACES, PAPERS
+from server.calc.projectfile import FEEDER_ROTATIONS, MAX_POLES, MAX_SPACES, PAPERS
 from server.calc.systems import SYSTEMS
 from server.calc.tables import conductor_sizes
 
@@ -82,6 +82,7 @@ _ENUM_RULES: dict[tuple[str, str], list[Any]] = {
     ("Feeder", "insulation_c"): [60, 75, 90],
     ("Feeder", "terminal_c"): [60, 75],
     ("ProjectInfo", "paper"): list(PAPERS),
+    ("Panel", "feeder_rotation"): list(FEEDER_ROTATIONS),
 }
 
 

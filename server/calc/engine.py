@@ -9,7 +9,9 @@ parser guarantees it):
 2. **Bottom-up roll-up.**  A node's aggregate is its own circuits plus what each child
    presents to it.  A sub-panel maps phase for phase (A→A, B→B, C→C: a panelboard fed from a
    3-pole breaker is connected phase for phase, whichever row the breaker sits in) and its
-   phasor line currents and third-harmonic neutral current add into the parent.  A
+   phasor line currents and third-harmonic neutral current add into the parent — unless its
+   ``feeder_rotation`` r is not 0: then its phase index i lands on the parent's index
+   (i + r) % 3 and its fundamental phasors turn by exp(−j·120°·r) (see :func:`_rotated`).  A
    transformer presents its primary line currents (:func:`~server.calc.loads.reflect_through_transformer`)
    and its secondary's connected VA by category, scaled by (1 + loss_pct/100) and spread
    evenly over the feeding breaker's poles (trade convention).  Demand
@@ -46,6 +48,7 @@ top-down pass; the result is identical to a full :func:`compute_project`.
 
 from __future__ import annotations
 
+import cmath
 import math
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
@@ -657,6 +660,9 @@ class Calculator:
         total = node.total if total is None else total
         assert total is not None
         if node.kind == "panel":
+            rotation = node.element.feeder_rotation  # type: ignore[union-attr]
+            if rotation:
+                return _rotated(total, rotation)
             return total  # same system, phase for phase
         t: Transformer = node.element  # type: ignore[assignment]
         parent_spec = node.parent.spec  # type: ignore[union-attr]
@@ -1319,6 +1325,37 @@ def _add_metered(agg: _Agg, spec: SystemSpec, va: float) -> None:
     agg.by_cat[key] = agg.by_cat.get(key, 0.0) + va
     agg.p_w += va * pf
     agg.q_var += q
+
+
+_ROTATION_ORDER = ("A", "B", "C")
+#: exp(−j·120°·r): a child's phase-A current (its own A at 0°) landed on upstream phase index r
+#: lags the upstream A by 120°·r.
+_ROTATION_FACTOR = tuple(cmath.rect(1.0, -2.0 * math.pi * r / 3.0) for r in range(3))
+
+
+def _rotated(total: _Agg, rotation: int) -> _Agg:
+    """What a panel whose feeder is landed rotated by ``rotation`` steps presents upstream.
+
+    Phase index i of the panel lands on upstream phase index (i + r) % 3 (a cyclic relabelling
+    that keeps the phase sequence).  VA and third-harmonic line currents are relabelled; the
+    fundamental phasors, computed with the panel's own A at 0°, are also turned by
+    exp(−j·120°·r) so they sit on the upstream phase's angle; third-harmonic phasors turn by
+    3 × that (a whole turn), so the triplen neutral phasor is unchanged.  Counts, P, Q and the
+    harmonic VA do not depend on phase labels.
+    """
+    up = _Agg(_ROTATION_ORDER)
+    up.merge_counts(total)
+    k = _ROTATION_FACTOR[rotation]
+    order = _ROTATION_ORDER
+    for i, p in enumerate(order):
+        q = order[(i + rotation) % 3]
+        up.phase_va[q] = total.phase_va.get(p, 0.0)
+        up.line_i[q] = total.line_i.get(p, 0j) * k
+        up.line_i3[q] = total.line_i3.get(p, 0.0)
+    up.neutral_i3 = total.neutral_i3
+    up.h3_ln_va = total.h3_ln_va
+    up.h3_va = total.h3_va
+    return up
 
 
 def _primary_neutral(node: _Node) -> bool:

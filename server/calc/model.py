@@ -172,6 +172,11 @@ class Panel:
     description: str = ""
     location: str = ""
     mounting: str = ""
+    #: Installer's landing of the panel's feeder conductors, relative to the panel feeding it: a
+    #: cyclic rotation r lands the panel's phase index i on upstream phase index (i + r) % 3
+    #: (r=1: A→B, B→C, C→A; r=2: A→C, B→A, C→B).  0 = as labelled.  Only on a three-phase
+    #: panel without a high leg (checked in projectfile).
+    feeder_rotation: int = 0
 
     def circuit_at(self, slot: int) -> Circuit | None:
         for c in self.circuits:

@@ -16,6 +16,8 @@ Rules (each breach is a :class:`~server.calc.errors.Problem` naming the tag, slo
 * A circuit with ``feeds`` carries a downstream panel or transformer; its ``va`` is computed
   and may not be typed.  Every element is fed exactly once; loops, dangling tags and a panel
   whose system does not match what feeds it are errors naming the tags.
+* ``feeder_rotation`` (optional, default 0) is 0, 1 or 2, and may be non-zero only on a
+  three-phase panel without a high leg fed from a three-phase system without a high leg.
 """
 
 from __future__ import annotations
@@ -378,13 +380,44 @@ def _parse_panel(raw: Any, problems: list[Problem], index: int) -> Panel | None:
         description=r.text("description"),
         location=r.text("location"),
         mounting=r.text("mounting"),
+        feeder_rotation=_feeder_rotation(r),
     )
     check_panel(panel, problems)
     return panel
 
 
+FEEDER_ROTATIONS = (0, 1, 2)
+
+
+def _feeder_rotation(r: _Reader) -> int:
+    value = r.integer("feeder_rotation", 0)
+    if value not in FEEDER_ROTATIONS:
+        r.add(
+            "feeder_rotation",
+            f"must be 0, 1 or 2 (0 = A→A, B→B, C→C; 1 = A→B, B→C, C→A; 2 = A→C, B→A, C→B), not {value}",
+        )
+        return 0
+    return value
+
+
+def rotation_allowed(system: str) -> bool:
+    """Whether a panel on ``system`` may have its feeder landed rotated: three-phase, no high leg."""
+    spec = SYSTEMS.get(system)
+    return spec is not None and spec.three_phase and spec.high_leg is None
+
+
 def check_panel(panel: Panel, problems: list[Problem]) -> None:
-    """Panel-level checks: each circuit fits the system and size, and no two breakers overlap."""
+    """Panel-level checks: each circuit fits the system and size, no two breakers overlap, and a
+    feeder rotation sits only on a three-phase panel without a high leg."""
+    if panel.feeder_rotation and panel.system in SYSTEMS and not rotation_allowed(panel.system):
+        problems.append(
+            Problem(
+                f"a feeder landing other than A→A, B→B, C→C needs a three-phase panel without a high leg; "
+                f"{panel.tag} is {panel.system}",
+                panel.tag,
+                field="feeder_rotation",
+            )
+        )
     taken: dict[int, int] = {}
     for c in panel.circuits:
         check_circuit_fits(panel, c, problems)
@@ -628,6 +661,15 @@ def check_topology(project: Project, problems: list[Problem]) -> None:
         if up_system is None:
             continue
         if isinstance(element, Panel):
+            if element.feeder_rotation and rotation_allowed(element.system) and not rotation_allowed(up_system):
+                problems.append(
+                    Problem(
+                        f"a feeder landing other than A→A, B→B, C→C needs a three-phase feeding system without "
+                        f"a high leg; {up} is {up_system}",
+                        element.tag,
+                        field="feeder_rotation",
+                    )
+                )
             if element.system and element.system != up_system:
                 problems.append(
                     Problem(
@@ -727,15 +769,23 @@ def _plain(value: Any) -> Any:
     return value
 
 
+def _plain_panel(panel: Panel) -> dict[str, Any]:
+    out = _plain(panel)
+    if not panel.feeder_rotation:
+        del out["feeder_rotation"]  # optional: files written before the field existed round-trip unchanged
+    return out
+
+
 def dump_project(project: Project) -> dict[str, Any]:
-    """The canonical version-1 JSON object of a project (every field written, nulls included)."""
+    """The canonical version-1 JSON object of a project (every field written, nulls included;
+    the one exception is a panel's ``feeder_rotation``, written only when not 0)."""
     return {
         "format": FORMAT_NAME,
         "version": FORMAT_VERSION,
         "project": _plain(project.project),
         "sources": [_plain(s) for s in project.sources],
         "transformers": [_plain(t) for t in project.transformers],
-        "panels": [_plain(p) for p in project.panels],
+        "panels": [_plain_panel(p) for p in project.panels],
     }
 
 

@@ -56,7 +56,7 @@ from pathlib import Path
 import pytest
 
 from server.calc.engine import Calculator, compute_project
-from server.calc.model import Circuit
+from server.calc.model import Circuit, Panel, Project, ProjectInfo, Source
 from server.calc.projectfile import load_project_file, loads_project, replace_panel
 from server.calc.results import WarningCode
 from tests.helpers import assert_close
@@ -532,3 +532,75 @@ def test_secondary_fault_includes_source_level_and_primary_feeder() -> None:
         + feeder_impedance_ohm("1", "Cu", "steel", 300, 1) * (208.0 / 480.0) ** 2
     )
     assert_close(with_feeder, bolted_fault_ka(z, SYSTEMS["208Y/120 3PH 4W"]))
+
+
+# --------------------------------------------------------------------------- feeder rotation
+#
+# Hand checks (common practice: a cyclic landing A→B, B→C, C→A relabels phases and keeps the
+# sequence).  208Y/120: V_A = 120∠0°, V_B = 120∠−120°, V_C = 120∠120°.
+
+
+def _rotation_project(circuits: tuple[Circuit, ...], rotation: int) -> Project:
+    return Project(
+        ProjectInfo(name="rotation hand check (invented)"),
+        sources=(Source("S", "208Y/120 3PH 4W"),),
+        panels=(
+            Panel(
+                "D",
+                "208Y/120 3PH 4W",
+                fed_from="S",
+                circuits=(Circuit(slot=1, poles=3, feeds="P"), Circuit(slot=2, poles=1, va=2_000, pf=1.0)),
+            ),
+            Panel("P", "208Y/120 3PH 4W", circuits=circuits, feeder_rotation=rotation),
+        ),
+    )
+
+
+@pytest.mark.parametrize("rotation", [1, 2])
+def test_one_kva_on_panel_phase_a_lands_on_the_rotated_upstream_phase(rotation) -> None:
+    # P: 1 000 VA, unity pf, on its own phase A (slot 1).  D: 2 000 VA on its own phase A (slot 2).
+    # r=1: P's A lands on D's B → D: A 2 000, B 1 000, C 0 VA; I_B = 1 000/120 = 8.333 A.
+    # r=2: P's A lands on D's C → D: A 2 000, B 0, C 1 000 VA.
+    res = compute_project(_rotation_project((Circuit(slot=1, poles=1, va=1_000, pf=1.0),), rotation))
+    landed = "B" if rotation == 1 else "C"
+    other = "C" if rotation == 1 else "B"
+    d, p = res.panels["D"], res.panels["P"]
+    assert p.connected_va == {"A": 1_000.0, "B": 0.0, "C": 0.0}  # the panel's own results keep its labels
+    assert_close(p.line_amps["A"], 1_000 / 120)
+    assert d.connected_va == {"A": 2_000.0, landed: 1_000.0, other: 0.0}
+    assert_close(d.line_amps[landed], 1_000 / 120)
+    assert_close(d.line_amps["A"], 2_000 / 120)
+    assert_close(d.line_amps[other], 0.0, abs_=1e-9)
+    # Neutral: |16.667∠0° + 8.333∠∓120°| = √(16.667² + 8.333² − 16.667·8.333) = 14.434 A either way.
+    assert_close(d.neutral_amps, math.sqrt(16.667**2 + 8.333**2 - 16.667 * 8.333), rel=1e-3)
+    # The feeding breaker on D shows the relabelled phase VA.
+    breaker = next(c for c in d.circuits if c.slot == 1)
+    assert breaker.phase_va == {"A": 0.0, landed: 1_000.0, other: 0.0}
+    assert res.sources["S"].connected_va == 3_000.0
+
+
+@pytest.mark.parametrize("rotation", [0, 1, 2])
+def test_balanced_three_loads_stay_balanced_whatever_the_landing(rotation) -> None:
+    # Three 3 000 VA unity-pf loads, one per phase: 25 A per line and no neutral current, rotated or not.
+    loads = tuple(Circuit(slot=s, poles=1, va=3_000, pf=1.0) for s in (1, 3, 5))
+    project = _rotation_project(loads, rotation)
+    project = replace(
+        project, panels=(replace(project.panels[0], circuits=project.panels[0].circuits[:1]), project.panels[1])
+    )
+    d = compute_project(project).panels["D"]
+    assert d.connected_va == {"A": 3_000.0, "B": 3_000.0, "C": 3_000.0}
+    for phase in "ABC":
+        assert_close(d.line_amps[phase], 25.0)
+    assert_close(d.neutral_amps, 0.0, abs_=1e-9)
+
+
+def test_rotation_turns_the_fundamental_phasor_not_just_the_label() -> None:
+    # P: 1 200 VA at pf 0.8 on its A; D: 1 200 VA at unity on its B (slot 4: row 2 = B).  With r=1
+    # both sit on D's B: I = 10∠(−120° − 36.87°) + 10∠−120° → |I_B| = 2·10·cos(18.435°) = 18.974 A.
+    # A relabel without the turn would add 10∠−36.87° to 10∠−120° (15.4 A), a different number.
+    project = _rotation_project((Circuit(slot=1, poles=1, va=1_200, pf=0.8),), 1)
+    d_panel = replace(
+        project.panels[0], circuits=(Circuit(slot=1, poles=3, feeds="P"), Circuit(slot=4, poles=1, va=1_200, pf=1.0))
+    )
+    d = compute_project(replace(project, panels=(d_panel, project.panels[1]))).panels["D"]
+    assert_close(d.line_amps["B"], 20 * math.cos(math.radians(36.87 / 2)), rel=1e-4)

@@ -15,6 +15,10 @@ Transformers: delta–wye, grounded wye–wye and a centre-tapped single-phase b
 lines (OpenDSS's 3-winding model), each with negligible impedance; the engine's primary line
 currents against OpenDSS's source currents, same 0.5 % tolerance.
 
+Feeder rotation: two panels on a delta–wye bank's secondary, one with its feeder landed rotated;
+OpenDSS gets each load on the secondary node it is really wired to; the engine's secondary and
+primary line currents against OpenDSS's transformer terminal currents, same 0.5 % tolerance.
+
 Voltage drop: a 3-phase feeder modelled as an OpenDSS Line with NFPA 70 Chapter 9 Table 9
 R and X per 1000 ft (the values the engine uses), feeding a balanced constant-power load.  The
 engine's effective-impedance method (Table 9 Note 2: VD ≈ √3·I·(R cos θ + X sin θ)·L) drops the
@@ -26,6 +30,7 @@ from __future__ import annotations
 
 import cmath
 import math
+from dataclasses import replace
 
 import pytest
 
@@ -260,3 +265,61 @@ def test_transformer_primary_currents_match_opendss(case: str) -> None:
     ours = compute_project(project).transformers["X"].primary_line_amps
     for p in pri.phases:
         assert_close(ours.get(p, 0.0), abs(terminal[NODE[p] - 1]), rel=0.005, abs_=1e-6, what=f"{case} {p} ({SOURCE})")
+
+
+# Feeder rotation: a delta–wye 480–208Y/120 bank (ideal, as above) whose secondary feeds two
+# panels; P2's feeder is landed rotated (feeder_rotation=1: P2's A on the secondary's B, B on C,
+# C on A).  OpenDSS simply sees every load on the secondary node it is really connected to, so
+# its secondary currents are an outside check of the engine's relabelling and phasor turn.
+ROTATED_P1 = [c(1, 1, 9_000, 0.9), c(3, 1, 2_500, 0.8), c(2, 1, 4_000, 1.0), c(4, 2, 6_000, 0.85)]
+ROTATED_P2 = [c(1, 1, 7_000, 0.7), c(3, 1, 1_500, 1.0), c(5, 1, 3_000, 0.95), c(2, 2, 5_000, 0.8)]
+
+
+@pytest.mark.parametrize("rotation", [0, 1, 2], ids=lambda r: f"P2 feeder_rotation={r} vs {SOURCE}")
+def test_rotated_panel_secondary_currents_match_opendss(rotation: int) -> None:
+    system, secondary = "480Y/277 3PH 4W", "208Y/120 3PH 4W"
+    pri, sec = SYSTEMS[system], SYSTEMS[secondary]
+    order = ("A", "B", "C")
+    _source(system)
+    _cmd(
+        "New Transformer.x phases=3 windings=2 buses=[src, sec] conns=[delta, wye] "
+        f"kVs=[{pri.v_ll / 1000:.9f}, {sec.v_ll / 1000:.9f}] kVAs=[150, 150] "
+        "%Rs=[0.00001, 0.00001] XHL=0.00001 %noloadloss=0 %imag=0"
+    )
+    for tag, circuits, r in (("p1", ROTATED_P1, 0), ("p2", ROTATED_P2, rotation)):
+        for circuit in circuits:
+            own = breaker_phases(sec, circuit.slot, circuit.poles)
+            landed = [order[(order.index(p) + r) % 3] for p in own]  # where the installer landed them
+            nodes = ".".join(str(NODE[p]) for p in landed)
+            kv = (sec.v_ll if circuit.poles == 2 else abs(sec.phase_voltage(own[0]))) / 1000
+            _cmd(
+                f"New Load.{tag}s{circuit.slot} bus1=sec.{nodes} phases=1 kV={kv:.9f} "
+                f"kVA={(circuit.va or 0) / 1000} pf={circuit.effective_pf} model=1"
+            )
+    _cmd(f"Set voltagebases=[{pri.v_ll / 1000:.9f}, {sec.v_ll / 1000:.9f}]", "Calcvoltagebases", "Solve")
+    assert dss.Solution.Converged()
+    winding = _element_currents("Transformer.x")  # terminal 1 (4 conductors), then terminal 2
+    ref_secondary = {p: abs(winding[4 + NODE[p] - 1]) for p in order}
+    ref_primary = {p: abs(winding[NODE[p] - 1]) for p in order}
+    project = Project(
+        ProjectInfo(name="OpenDSS feeder-rotation cross-check (invented)"),
+        sources=(Source("S", system),),
+        transformers=(Transformer("X", kva=150, primary="480 3PH 3W", secondary=secondary),),
+        panels=(
+            Panel("D", system, fed_from="S", circuits=(Circuit(slot=1, poles=3, feeds="X"),)),
+            Panel("P1", secondary, fed_from="X", circuits=tuple(ROTATED_P1)),
+            Panel("P2", secondary, fed_from="X", circuits=tuple(ROTATED_P2), feeder_rotation=rotation),
+        ),
+    )
+    result = compute_project(project)
+    ours = result.transformers["X"]
+    for p in order:
+        what = f"secondary line {p}, P2 rotation {rotation} ({SOURCE})"
+        assert_close(ours.secondary_line_amps[p], ref_secondary[p], rel=0.005, abs_=1e-6, what=what)
+        what = f"primary line {p}, P2 rotation {rotation} ({SOURCE})"
+        assert_close(ours.primary_line_amps[p], ref_primary[p], rel=0.005, abs_=1e-6, what=what)
+    # P2's own results do not depend on how its feeder is landed.
+    panels = tuple(replace(p, feeder_rotation=0) if p.tag == "P2" else p for p in project.panels)
+    unrotated = compute_project(replace(project, panels=panels)).panels["P2"]
+    assert result.panels["P2"].line_amps == unrotated.line_amps
+    assert result.panels["P2"].connected_va == unrotated.connected_va

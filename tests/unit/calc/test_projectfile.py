@@ -241,3 +241,46 @@ def test_three_phase_primary_on_a_single_phase_source_is_refused() -> None:
         {"tag": "X", "kva": 15, "primary": "240 3PH 3W", "secondary": "208Y/120 3PH 4W", "fed_from": "S"}
     )
     _one(d, tag="X", field="primary", words=("three-phase primary",))
+
+
+# --------------------------------------------------------------------------- feeder_rotation
+
+
+def test_feeder_rotation_is_optional_and_round_trips() -> None:
+    d = _base()
+    assert parse_project(d).panels[0].feeder_rotation == 0
+    assert "feeder_rotation" not in dump_project(parse_project(d))["panels"][0]  # omitted when 0
+    d["panels"][0]["feeder_rotation"] = 2
+    project = parse_project(d)
+    assert project.panels[0].feeder_rotation == 2
+    dumped = dump_project(project)
+    assert dumped["panels"][0]["feeder_rotation"] == 2
+    assert parse_project(dumped) == project
+
+
+@pytest.mark.parametrize("value", [3, -1, 1.5, "two", True])
+def test_feeder_rotation_must_be_0_1_or_2(value) -> None:
+    d = _base()
+    d["panels"][0]["feeder_rotation"] = value
+    _one(d, tag="P1", field="feeder_rotation")
+
+
+def test_feeder_rotation_needs_three_phase_without_high_leg() -> None:
+    for system, words in (("240/120 3PH 4W", ("high leg", "240/120")), ("120/240 1PH 3W", ("three-phase",))):
+        d = _base()
+        d["sources"][0]["system"] = system
+        d["panels"][0]["system"] = system
+        d["panels"][0]["feeder_rotation"] = 1
+        _one(d, tag="P1", field="feeder_rotation", words=words)
+    d = _base()  # a 3-wire delta without a high leg may be rotated
+    d["sources"][0]["system"] = d["panels"][0]["system"] = "480 3PH 3W"
+    d["panels"][0]["circuits"] = [{"slot": 1, "poles": 3, "va": 9000}]
+    d["panels"][0]["feeder_rotation"] = 1
+    assert parse_project(d).panels[0].feeder_rotation == 1
+
+
+def test_feeder_rotation_needs_a_rotatable_feeding_system() -> None:
+    d = _base()
+    d["sources"][0]["system"] = "240/120 3PH 4W"
+    d["panels"][0]["feeder_rotation"] = 1
+    _one(d, tag="P1", field="feeder_rotation", words=("feeding system", "S is 240/120 3PH 4W"))

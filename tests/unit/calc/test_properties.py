@@ -4,7 +4,7 @@ Facts of the trade (common practice): Kirchhoff's current law makes the line cur
 3-wire circuit sum to zero; a balanced three-phase set returns nothing on the neutral; VA is
 conserved as loads roll up to their feeders; constant-power currents at nominal voltage scale
 linearly with the load.  Plus the engine's own contract: an incremental update equals a full
-recompute.
+recompute — also with panels whose feeders are landed rotated (``feeder_rotation``).
 """
 
 from __future__ import annotations
@@ -19,7 +19,7 @@ from hypothesis import strategies as st
 from server.calc.engine import Calculator, compute_project
 from server.calc.loads import circuit_currents
 from server.calc.model import Category, Circuit, Panel, Project, ProjectInfo, Source, Status
-from server.calc.projectfile import dump_project, parse_project, replace_panel
+from server.calc.projectfile import dump_project, parse_project, replace_panel, rotation_allowed
 from server.calc.systems import SYSTEMS, slot_phase
 from tests.benchmarks.generate import generate_project
 from tests.helpers import assert_close
@@ -145,13 +145,25 @@ def test_connected_va_is_conserved_through_the_roll_up(seed, include_future) -> 
         assert_close(res.sources[s.tag].connected_va, below, rel=1e-9)
 
 
+def _with_rotations(project: Project, rotations: list[int]) -> Project:
+    """``project`` with feeder rotations drawn from ``rotations`` on the panels that allow one."""
+    panels = list(project.panels)
+    allowed = [i for i, p in enumerate(panels) if rotation_allowed(p.system)]
+    for i, r in zip(allowed, rotations, strict=False):
+        panels[i] = replace(panels[i], feeder_rotation=r)
+    rotated = replace(project, panels=tuple(panels))
+    assert parse_project(dump_project(rotated)) == rotated  # the drawn rotations are all valid
+    return rotated
+
+
 @given(
     seed=st.integers(0, 10_000),
     edits=st.lists(st.tuples(st.integers(0, 10**6), VA, PF, CIRCUIT), min_size=1, max_size=6),
+    rotations=st.lists(st.sampled_from([0, 1, 2]), max_size=11),
 )
 @settings(max_examples=30, deadline=None)
-def test_incremental_equals_full(seed, edits) -> None:
-    project = _small(seed)
+def test_incremental_equals_full(seed, edits, rotations) -> None:
+    project = _with_rotations(_small(seed), rotations)
     calc = Calculator(project)
     for pick, va, pf, (_poles, _va, _pf, cat, status, h3) in edits:
         rng = random.Random(pick)
@@ -256,6 +268,7 @@ def _random_project(seed: int) -> Project:
             subs = [(sub, len(SYSTEMS[system].phases))] if rng.random() < 0.5 else []
             circuits, spaces = _random_circuits(rng, system, rng.randint(0, 10), subs)
             feeder = {"length_ft": rng.choice([0, 30, 200])}
+            rotatable = rotation_allowed(system)
             data["panels"].append(
                 {
                     "tag": tag,
@@ -264,11 +277,20 @@ def _random_project(seed: int) -> Project:
                     "spaces": spaces,
                     "circuits": circuits,
                     "feeder": feeder,
+                    "feeder_rotation": rng.choice([0, 1, 2]) if rotatable else 0,
                 }
             )
             if subs:
                 circuits, spaces = _random_circuits(rng, system, rng.randint(0, 10), [])
-                data["panels"].append({"tag": sub, "system": system, "spaces": spaces, "circuits": circuits})
+                data["panels"].append(
+                    {
+                        "tag": sub,
+                        "system": system,
+                        "spaces": spaces,
+                        "circuits": circuits,
+                        "feeder_rotation": rng.choice([0, 1, 2]) if rotatable else 0,
+                    }
+                )
     return parse_project(data)
 
 
