@@ -10,8 +10,10 @@ from typing import Any
 from urllib.parse import quote
 
 from fastapi.templating import Jinja2Templates
+from jinja2 import pass_context
 
 from server import formatting
+from server.auth.roles import Permission, allows
 from server.calc.results import Severity
 from server.commands import CAUTION
 
@@ -103,6 +105,15 @@ def fmt_value(x: Any) -> str:
     return str(getattr(x, "value", x))
 
 
+@pass_context
+def may(context: Any, permission: str) -> bool:
+    """Whether the signed-in user may do ``permission`` ("edit", "comment", …): screens hide or
+    disable what the role cannot do (the routes refuse it regardless)."""
+    request = context.get("request")
+    user = getattr(getattr(request, "state", None), "user", None)
+    return allows(user.role if user is not None else None, Permission(permission))
+
+
 SEVERITY_RANK = {Severity.ERROR: 3, Severity.WARNING: 2, Severity.NOTE: 1}
 
 
@@ -113,5 +124,5 @@ def make_templates() -> Jinja2Templates:
     env.trim_blocks = True
     env.lstrip_blocks = True
     env.filters.update(kva=fmt_kva, num=fmt_num, pct=fmt_pct, val=fmt_value)
-    env.globals.update(urls=Urls(), CAUTION=CAUTION)
+    env.globals.update(urls=Urls(), CAUTION=CAUTION, may=may)
     return templates

@@ -442,3 +442,15 @@ def test_first_run_page_only_on_the_server_and_only_once(app):
     assert home.status_code == 200 and "owner" in home.text and "(admin)" in home.text
     again = TestClient(app).get("/setup")
     assert again.status_code == 403 and "already exists" in again.text
+
+
+def test_reviewer_sees_a_read_only_panel_editor(app, client, demo_id):
+    # The screen does not offer what the role cannot do: no balance button, every box disabled.
+    tag = _samples(app, demo_id)["tag"]
+    page = _browser(app, "reviewer").get(f"/projects/{demo_id}/panels/{tag}")
+    assert page.status_code == 200
+    assert 'id="balance-open"' not in page.text and 'id="read-only-note"' in page.text
+    assert re.search(r'<fieldset class="grid-set" id="grid-set" disabled>', page.text)
+    page = _browser(app, "engineer").get(f"/projects/{demo_id}/panels/{tag}")
+    assert 'id="balance-open"' in page.text and 'id="read-only-note"' not in page.text
+    assert re.search(r'<fieldset class="grid-set" id="grid-set">', page.text)
