@@ -373,7 +373,16 @@ def blank_to_none(form: Mapping[str, Any]) -> dict[str, Any]:
 
 #: Circuit fields a user edits in the panel editor (``feeds`` changes only through the tree).
 CIRCUIT_FORM_FIELDS = ("description", "category", "poles", "va", "pf", "continuous", "breaker_amps", "status", "notes")
-PANEL_FORM_FIELDS = ("description", "bus_amps", "main_amps", "spaces", "sccr_ka", "location", "mounting")
+PANEL_FORM_FIELDS = (
+    "description",
+    "bus_amps",
+    "main_amps",
+    "spaces",
+    "sccr_ka",
+    "location",
+    "mounting",
+    "feeder_rotation",
+)
 FEEDER_FORM_FIELDS = ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c")
 TRANSFORMER_FORM_FIELDS = (
     "kva",

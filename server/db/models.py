@@ -162,6 +162,8 @@ class Panel(FeederColumns, Base):
     description: Mapped[str] = mapped_column(String(500), default="")
     location: Mapped[str] = mapped_column(String(500), default="")
     mounting: Mapped[str] = mapped_column(String(500), default="")
+    # The installer's cyclic landing of the feeder (0, 1 or 2; see server.calc.model.Panel).
+    feeder_rotation: Mapped[int] = mapped_column(Integer, default=0, server_default="0", nullable=False)
 
     project: Mapped[Project] = relationship(back_populates="panels")
     circuits: Mapped[list[Circuit]] = relationship(

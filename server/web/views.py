@@ -11,8 +11,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from server.calc.balance import rotation_landing
 from server.calc.model import Category, Circuit, CodeEdition, Conduit, Material, Occupancy, Panel, Status, Transformer
-from server.calc.projectfile import PAPERS
+from server.calc.projectfile import FEEDER_ROTATIONS, PAPERS, rotation_allowed
 from server.calc.results import CalcWarning, CircuitResult, PanelResult, ProjectResult, Severity, TransformerResult
 from server.calc.systems import SYSTEMS, breaker_slots, slot_phase
 from server.calc.tables import conductor_sizes
@@ -341,11 +342,43 @@ class PanelContext:
     def pid(self) -> int:
         return self.page.pid or 0
 
+    @property
+    def landings(self) -> tuple[tuple[str, str], ...]:
+        """The "Feeder landing" choices (value, words); empty where the panel cannot be rotated."""
+        return feeder_landings(self.panel.system)
+
+    @property
+    def feeder_landing(self) -> str:
+        """How the panel's feeder is landed, in the installer's words; "" when as labelled."""
+        return feeder_landing_words(self.panel.feeder_rotation) if self.panel.feeder_rotation else ""
+
+
+def feeder_landing_words(rotation: int) -> str:
+    """Installer's words for a panel's ``feeder_rotation``."""
+    if rotation == 0:
+        return f"{rotation_landing(0)} (as labelled)"
+    return rotation_landing(rotation)
+
+
+def feeder_landings(system: str) -> tuple[tuple[str, str], ...]:
+    if not rotation_allowed(system):
+        return ()
+    return tuple((str(r), feeder_landing_words(r)) for r in FEEDER_ROTATIONS)
+
 
 def panel_header_values(panel: Panel) -> dict[str, str]:
     values = {
         k: fmt_value(getattr(panel, k))
-        for k in ("description", "bus_amps", "main_amps", "spaces", "sccr_ka", "location", "mounting")
+        for k in (
+            "description",
+            "bus_amps",
+            "main_amps",
+            "spaces",
+            "sccr_ka",
+            "location",
+            "mounting",
+            "feeder_rotation",
+        )
     }
     for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c"):
         values[f"feeder_{k}"] = fmt_value(getattr(panel.feeder, k))

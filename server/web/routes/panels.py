@@ -67,6 +67,7 @@ _HEADER_FIELDS = {
     "sccr_ka",
     "location",
     "mounting",
+    "feeder_rotation",
     *(
         f"feeder_{k}"
         for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c")

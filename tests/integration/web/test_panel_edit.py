@@ -161,3 +161,46 @@ def test_concurrent_edits_all_land_and_the_cache_matches_a_full_recompute(app, d
     cached = svc.snapshot(demo_id).result.to_json()
     svc.cache.drop(demo_id)
     assert svc.snapshot(demo_id).result.to_json() == cached
+
+
+def test_feeder_landing_is_a_header_field_where_a_rotation_is_allowed(client, demo_id):
+    url = f"/projects/{demo_id}/panels/LP-1"
+    api = f"/api/projects/{demo_id}"
+    doc = parse(client.get(url).text)
+    options = doc.by_id("f-feeder_rotation").find_all("option")
+    assert [(o.attrs["value"], o.text) for o in options] == [
+        ("0", "A→A, B→B, C→C (as labelled)"),
+        ("1", "A→B, B→C, C→A"),
+        ("2", "A→C, B→A, C→B"),
+    ]
+    assert doc.by_id("panel-summary").find("dd", data_role="feeder-landing") is None
+    before = client.get(f"{api}/results").json()
+    # A value outside 0–2 comes back on the form with the message beside the field; nothing stored.
+    r = client.post(url, data={"feeder_rotation": "5", "location": "Room 9"})
+    assert r.status_code == 422
+    field = parse(r.text).by_id("f-feeder_rotation").parent
+    assert "invalid" in field.attrs["class"] and "must be 0, 1 or 2" in field.text
+    assert "feeder_rotation" not in next(p for p in client.get(api).json()["panels"] if p["tag"] == "LP-1")
+    r = client.post(url, data={"feeder_rotation": "1"}, follow_redirects=False)
+    assert r.status_code == 303
+    lp1 = next(p for p in client.get(api).json()["panels"] if p["tag"] == "LP-1")
+    assert lp1["feeder_rotation"] == 1
+    doc = parse(client.get(url).text)
+    assert doc.by_id("f-feeder_rotation").find("option", selected="*").attrs["value"] == "1"
+    assert "A→B, B→C, C→A" in doc.by_id("panel-summary").find("dd", data_role="feeder-landing").text
+    after = client.get(f"{api}/results").json()
+    # LP-1's own totals keep its labels; T-1's secondary sees them relabelled (A→B, B→C, C→A).
+    assert after["panels"]["LP-1"]["connected_va"] == before["panels"]["LP-1"]["connected_va"]
+    own = before["transformers"]["T-1"]["secondary_line_amps"]
+    rotated = after["transformers"]["T-1"]["secondary_line_amps"]
+    assert_close(rotated["B"], own["A"], rel=1e-3)
+    assert_close(rotated["C"], own["B"], rel=1e-3)
+    assert_close(rotated["A"], own["C"], rel=1e-3)
+
+
+def test_feeder_landing_is_refused_on_a_single_phase_panel(client, demo_id):
+    url = f"/projects/{demo_id}/panels/SB-1"
+    assert parse(client.get(url).text).by_id("f-feeder_rotation") is None
+    r = client.post(url, data={"feeder_rotation": "1"})
+    assert r.status_code == 422
+    assert "three-phase panel without a high leg" in parse(r.text).by_id("panel-header").text
