@@ -27,7 +27,7 @@ from server.calc.model import Category, Circuit, Panel, Project
 from server.calc.projectfile import check_panel, check_topology, parse_circuit
 from server.calc.systems import SYSTEMS, SystemSpec, breaker_phases
 
-from .mapping import LOAD_ROLES, ColumnMap, Role, normalise, to_number
+from .mapping import LOAD_ROLES, ColumnMap, Role, Side, column_letter, normalise, to_number
 from .reader import CellValue, Grid
 
 
@@ -60,6 +60,8 @@ class PreviewRow:
     ignored: str = ""  # why the row is not imported ("blank row", "totals row" ...)
 
     width: int = 0
+    side: str = ""  # two-column layout: "left" or "right" half of the sheet row; "" = the whole row
+    slot_inferred: bool = False  # the slot came from the row order, not from a circuit column
 
     @property
     def cells(self) -> tuple[str, ...]:
@@ -95,6 +97,7 @@ class ImportPreview:
     rows: tuple[PreviewRow, ...]
     circuits: dict[str, tuple[Circuit, ...]] = field(default_factory=dict)  # by panel tag
     problems: tuple[str, ...] = ()  # problems of the import as a whole (no rows, unknown panel ...)
+    notes: tuple[str, ...] = ()  # what the import assumed (slots inferred from the row order ...)
 
     @property
     def error_count(self) -> int:
@@ -122,6 +125,8 @@ class ImportPreview:
         for r in self.rows:
             for p in r.problems:
                 where = [f"{self.source}", f"sheet {r.sheet!r}", f"row {r.sheet_row}"]
+                if r.side:
+                    where[-1] += f" ({r.side} half)"
                 if r.panel:
                     where.append(f"panel {r.panel}")
                 if r.circuit is not None:
@@ -429,6 +434,7 @@ def build_preview(
 ) -> ImportPreview:
     """Read every planned sheet, validate through the engine, and return what would be stored."""
     top: list[str] = []
+    notes: list[str] = []
     rows: list[PreviewRow] = []
     by_panel: dict[str, list[tuple[int, Circuit]]] = {}
     claimed: dict[str, str] = {}
@@ -446,6 +452,11 @@ def build_preview(
             claimed[plan.panel] = plan.sheet
         elif plan.mapping.column(Role.PANEL) is None:
             top.append(f"sheet {plan.sheet!r}: choose a panel, or map a column to 'panel'")
+            continue
+        if plan.mapping.split is not None:
+            two = _two_column_rows(grid, plan, project, by_panel, len(rows))
+            rows.extend(two.rows)
+            notes.extend(two.notes)
             continue
         if plan.mapping.column(Role.SLOT) is None:
             top.append(f"sheet {plan.sheet!r}: no column is mapped to 'slot'; every circuit needs its slot number")
@@ -465,7 +476,9 @@ def build_preview(
     elif not by_panel and not top:
         top.append("no row holds a circuit (every row is blank, a header, a total or an empty slot)")
     circuits = {tag: p.circuits for tag, p in new_panels.items()}
-    return ImportPreview(source=source, plans=tuple(plans), rows=tuple(rows), circuits=circuits, problems=tuple(top))
+    return ImportPreview(
+        source=source, plans=tuple(plans), rows=tuple(rows), circuits=circuits, problems=tuple(top), notes=tuple(notes)
+    )
 
 
 def _sheet_rows(
@@ -536,58 +549,70 @@ def _sheet_rows(
         if not described and w.load is None and not w.problems:
             out.append(row_of(panel=tag, ignored="empty slot"))
             continue
-        desc = str(w.raw.get("description", ""))
-        word = desc.strip().lower() if len(desc) <= 8 else ""
-        if word in ("space", "spc") and "poles" not in w.raw:
-            w.raw["poles"] = 0
-        # messy sheets without a category column: a breaker described "spare" is a spare
-        if word in ("spare", "spr") and cmap.column(Role.CATEGORY) is None:
-            w.raw["category"] = Category.SPARE.value
         panel = panels.get(tag) if tag else None
-        spec = SYSTEMS.get(panel.system) if panel else None
-        poles_for_load = int(w.raw.get("poles", 1) or 1)
-        if w.load is not None:
-            value, unit, col = w.load
-            if unit == Role.LOAD_KVA:
-                w.raw["va"] = round(value * 1000.0, 6)
-            elif unit == Role.LOAD_AMPS:
-                if spec is not None:
-                    va = amps_to_va(value, poles_for_load, spec)
-                    if isinstance(va, str):
-                        w.problems.append(CellProblem(va, col, "va"))
-                    else:
-                        w.raw["va"] = round(va, 3)
-            else:
-                w.raw["va"] = value
-        engine: list[Problem] = []
-        circuit = parse_circuit(w.raw, engine, tag=tag or "?", index=offset + len(out))
-        for p in engine:
-            col = w.columns.get(p.field or "")
-            w.problems.append(CellProblem(p.message, col if col is not None and col >= 0 else None, p.field or ""))
-        phases: tuple[str, ...] = ()
-        if circuit is not None and spec is not None and not circuit.is_space and circuit.poles <= len(spec.phases):
-            phases = breaker_phases(spec, circuit.slot, circuit.poles)
-            if w.phase_cell is not None:
-                said, col = w.phase_cell
-                if said is None:
-                    w.problems.append(
-                        CellProblem("the phase column is not A, B, C or a mix of them", col, "phase", Severity.WARNING)
-                    )
-                elif said != tuple(sorted(set(phases))):
-                    w.problems.append(
-                        CellProblem(
-                            f"the phase column says {''.join(said)}, but slot {circuit.slot} "
-                            f"({circuit.poles}-pole) is on {''.join(phases)} on {spec.name}; the slot decides",
-                            col,
-                            "phase",
-                            Severity.WARNING,
-                        )
-                    )
+        circuit, phases = _make_circuit(w, tag, panel, cmap, offset + len(out))
         row = row_of(panel=tag, circuit=circuit, phases=phases, problems=tuple(w.problems))
         if circuit is not None and tag is not None and panel is not None:
             by_panel.setdefault(tag, []).append((offset + len(out), circuit))
         out.append(row)
     return out
+
+
+def _make_circuit(
+    w: _RowWork, tag: str | None, panel: Panel | None, cmap: ColumnMap, index: int, *, row_phase: bool = False
+) -> tuple[Circuit | None, tuple[str, ...]]:
+    """The circuit of one read row through the engine's :func:`parse_circuit`; problems go to ``w``.
+
+    ``row_phase``: the phase column names the phase of the row (the middle column of a two-column
+    schedule), so one letter matching the breaker's first slot agrees too.
+    """
+    desc = str(w.raw.get("description", ""))
+    word = desc.strip().lower() if len(desc) <= 8 else ""
+    if word in ("space", "spc") and "poles" not in w.raw:
+        w.raw["poles"] = 0
+    # messy sheets without a category column: a breaker described "spare" is a spare
+    if word in ("spare", "spr") and cmap.column(Role.CATEGORY) is None:
+        w.raw["category"] = Category.SPARE.value
+    spec = SYSTEMS.get(panel.system) if panel else None
+    poles_for_load = int(w.raw.get("poles", 1) or 1)
+    if w.load is not None:
+        value, unit, col = w.load
+        if unit == Role.LOAD_KVA:
+            w.raw["va"] = round(value * 1000.0, 6)
+        elif unit == Role.LOAD_AMPS:
+            if spec is not None:
+                va = amps_to_va(value, poles_for_load, spec)
+                if isinstance(va, str):
+                    w.problems.append(CellProblem(va, col, "va"))
+                else:
+                    w.raw["va"] = round(va, 3)
+        else:
+            w.raw["va"] = value
+    engine: list[Problem] = []
+    circuit = parse_circuit(w.raw, engine, tag=tag or "?", index=index)
+    for p in engine:
+        col = w.columns.get(p.field or "")
+        w.problems.append(CellProblem(p.message, col if col is not None and col >= 0 else None, p.field or ""))
+    phases: tuple[str, ...] = ()
+    if circuit is not None and spec is not None and not circuit.is_space and circuit.poles <= len(spec.phases):
+        phases = breaker_phases(spec, circuit.slot, circuit.poles)
+        if w.phase_cell is not None:
+            said, col = w.phase_cell
+            if said is None:
+                w.problems.append(
+                    CellProblem("the phase column is not A, B, C or a mix of them", col, "phase", Severity.WARNING)
+                )
+            elif said != tuple(sorted(set(phases))) and not (row_phase and said == phases[:1]):
+                w.problems.append(
+                    CellProblem(
+                        f"the phase column says {''.join(said)}, but slot {circuit.slot} "
+                        f"({circuit.poles}-pole) is on {''.join(phases)} on {spec.name}; the slot decides",
+                        col,
+                        "phase",
+                        Severity.WARNING,
+                    )
+                )
+    return circuit, phases
 
 
 def _attach_engine_problems(
@@ -620,7 +645,8 @@ def _attach_engine_problems(
             targets = [by_panel[p.tag][0][0]]
         for index in targets[-1:] if "overlap" in p.message else targets:
             row = rows[index]
-            col = field_column(maps[row.sheet], p.field or "")
+            cmap = maps[row.sheet]
+            col = field_column(cmap.side_map(Side(row.side)) if row.side else cmap, p.field or "")
             rows[index] = replace(row, problems=row.problems + (CellProblem(p.message, col, p.field or ""),))
 
 
@@ -634,3 +660,353 @@ def field_column(cmap: ColumnMap, fieldname: str) -> int | None:
         if col is not None:
             return col
     return None
+
+
+# --------------------------------------------------------------------------- two-column layout
+
+#: What a continuation row of a multi-pole breaker holds in place of values: dashes, a slash,
+#: ditto marks, "do", or the pole count ("2P", "3-pole").  Common practice on hand-made schedules.
+_MARK_RE = re.compile(
+    r"^(?:[-\u2010-\u2015/\\\"'\u3003\u2033.\u2026 ]+|do|ditto|same|(?P<poles>[23]) ?-? ?(?:p|pole|poles))$", re.I
+)
+
+
+def _mark(value: CellValue) -> tuple[bool, int | None]:
+    """Whether a cell is a continuation mark, and the pole count it states ("3P" → 3)."""
+    if not isinstance(value, str):
+        return False, None
+    m = _MARK_RE.match(value.strip())
+    if not m:
+        return False, None
+    return True, int(m.group("poles")) if m.group("poles") else None
+
+
+@dataclass
+class _Half:
+    """One half (left or right) of a physical sheet row that holds something."""
+
+    r: int  # 0-based sheet row
+    side: Side
+    values: tuple[CellValue, ...]
+    w: _RowWork
+    slot: int | None  # given or inferred; None when the circuit column is blank
+    inferred: bool
+    conts: list[_Half] = field(default_factory=list)  # continuation rows of a multi-pole breaker
+    mark_poles: int | None = None
+    owner: _Half | None = None  # set on a continuation half
+
+
+@dataclass
+class _TwoColumnRows:
+    rows: list[PreviewRow]
+    notes: list[str]
+
+
+def _stated_poles(h: _Half) -> int | None:
+    p = h.w.raw.get("poles")
+    return p if isinstance(p, int) else None
+
+
+def _continues(owner: _Half, content: dict[int, CellValue], roles: Sequence[Role]) -> tuple[bool, int | None]:
+    """Whether a half's cells continue ``owner`` (a multi-pole breaker on the rows above).
+
+    With the poles stated on the first row, every cell must be blank, a mark, the first row's
+    value again, or a load (one pole's share).  Without them, a mark or the description
+    repeated (with no load of its own) extends the breaker, up to 3 poles.
+    """
+    stated = _stated_poles(owner)
+    taken = 1 + len(owner.conts)
+    if stated is not None and (stated < 2 or taken >= stated):
+        return False, None
+    if stated is None and taken >= 3:
+        return False, None
+    if owner.w.raw.get("poles") == 0 or str(owner.w.raw.get("description", "")).strip().lower() in ("space", "spc"):
+        return False, None
+    marks = 0
+    loads = 0
+    repeated_description = False
+    mark_poles: int | None = None
+    for c, v in content.items():
+        is_mark, p = _mark(v)
+        if is_mark:
+            marks += 1
+            mark_poles = p or mark_poles
+            continue
+        first = owner.values[c] if c < len(owner.values) else None
+        if first not in (None, "") and normalise(_text(v)) == normalise(_text(first)):
+            repeated_description |= roles[c] == Role.DESCRIPTION
+            continue
+        if roles[c] in LOAD_ROLES and to_number(v) is not None:
+            loads += 1
+            continue
+        return False, None
+    if stated is not None:
+        return True, mark_poles
+    if marks or (repeated_description and not loads) or (not content and mark_poles):
+        return True, mark_poles
+    return False, None
+
+
+def _two_column_rows(
+    grid: Grid,
+    plan: SheetPlan,
+    project: Project,
+    by_panel: dict[str, list[tuple[int, Circuit]]],
+    offset: int,
+) -> _TwoColumnRows:
+    """Rows of a two-column schedule: each sheet row gives up to two circuits (left half odd, right half even).
+
+    A multi-pole breaker whose continuation rows are blank, marked ("—", "/", "2P") or repeat
+    the description becomes one circuit with its poles; loads on its rows are summed.  Slots come
+    from each half's circuit column, or from the row order when a half has none.
+    """
+    cmap = plan.mapping
+    sides = (Side.LEFT, Side.RIGHT)
+    maps = {s: cmap.side_map(s) for s in sides}
+    cols = {s: _column_roles(maps[s]) for s in sides}
+    own = {
+        s: [c for c, r in cols[s] if c in cmap.block(s) and r not in (Role.SLOT, Role.PHASE, Role.PANEL)] for s in sides
+    }
+    slot_cols = {s: maps[s].column(Role.SLOT) for s in sides}
+    inferring = {s for s in sides if slot_cols[s] is None}
+    panel_col = cmap.column(Role.PANEL)
+    width = max(grid.width, len(cmap.roles))
+    header_key = tuple(normalise(h) for h in cmap.headers)
+    formulas_by_row: dict[int, set[int]] = {}
+    for r, c in grid.formulas:
+        formulas_by_row.setdefault(r, set()).add(c)
+    panels = {p.tag: p for p in project.panels}
+    roles = cmap.roles
+
+    events: list[PreviewRow | _Half] = []
+    open_: dict[Side, _Half | None] = {Side.LEFT: None, Side.RIGHT: None}
+    ended = ""
+    position = 0  # table rows so far (for inferred slots)
+    started = False
+    for r in range(cmap.header_row + 1, len(grid.rows)):
+        values = grid.rows[r]
+        blank = _is_blank(values)
+        if ended:
+            if not blank:
+                events.append(_ignored_row(plan, r, values, width, ended))
+            continue
+        if blank and (not inferring or not started):
+            continue  # layout; with slots from the row order, a blank row inside the table is a table row
+        if not blank:
+            texts = _row_texts(values, width)
+            if any(texts) and all(normalise(t) == h for t, h in zip(texts, header_key, strict=False)):
+                events.append(_ignored_row(plan, r, values, width, "repeated header row"))
+                continue
+            slot_cells = [values[c] for c in slot_cols.values() if c is not None and c < len(values)]
+            if all(v is None or v == "" for v in slot_cells) and _TOTAL_RE.search(normalise(" ".join(texts))):
+                ended = "below the totals row"
+                events.append(_ignored_row(plan, r, values, width, "totals row (not a circuit)"))
+                continue
+        started = True
+        position += 1
+        formulas = formulas_by_row.get(r, set())
+        for side in sides:
+            content = {c: values[c] for c in own[side] if c < len(values) and values[c] not in (None, "")}
+            content = {c: v for c, v in content.items() if not (isinstance(v, str) and not v.strip())}
+            marked = {c for c, v in content.items() if _mark(v)[0]}
+            # marks are read as blank ("—" in a load column is no load); "2P" in a poles or trip column is kept
+            read_values = values
+            if marked:
+                cleared = [c for c in marked if not (_mark(values[c])[1] and roles[c] in (Role.POLES, Role.BREAKER))]
+                read_values = tuple(None if c in cleared else v for c, v in enumerate(values))
+            slot_col = slot_cols[side]
+            slot_cell = values[slot_col] if slot_col is not None and slot_col < len(values) else None
+            slot: int | None = None
+            slot_error = ""
+            if slot_col is None:
+                slot = 2 * (position - 1) + (1 if side == Side.LEFT else 2)
+            elif slot_cell not in (None, "") and not _mark(slot_cell)[0]:
+                got = parse_slot(slot_cell)
+                if isinstance(got, str):
+                    slot_error = got
+                else:
+                    slot = got[0]
+            owner = open_[side]
+            if owner is not None and not slot_error:
+                expected = owner.slot + 2 * (1 + len(owner.conts)) if owner.slot is not None else None
+                if slot is None or expected is None or slot == expected:
+                    ok, mark_poles = _continues(owner, content, roles)
+                    if ok:
+                        w = _read_row(read_values, formulas, cols[side])
+                        cont = _Half(r, side, values, w, slot, False, owner=owner)
+                        owner.conts.append(cont)
+                        owner.mark_poles = owner.mark_poles or mark_poles
+                        events.append(cont)
+                        continue
+            open_[side] = None
+            if len(marked) == len(content):
+                continue  # a blank half (only its circuit number, or marks): no circuit
+            w = _read_row(read_values, formulas, cols[side])
+            h = _Half(r, side, values, w, slot, slot_col is None)
+            events.append(h)
+            open_[side] = h
+
+    # Second pass: each breaker with its continuation rows becomes one circuit.
+    out: list[PreviewRow] = []
+    claimed: dict[tuple[str, int], _Half] = {}
+    notes: list[str] = []
+    for ev in events:
+        if isinstance(ev, PreviewRow):
+            out.append(ev)
+            continue
+        if ev.owner is not None:
+            own_slot = ev.owner.w.raw.get("slot")
+            what = f"slot {own_slot}" if own_slot is not None else "the breaker"
+            out.append(
+                PreviewRow(
+                    sheet=plan.sheet,
+                    sheet_row=ev.r + 1,
+                    values=ev.values,
+                    width=width,
+                    side=ev.side.value,
+                    ignored=f"continues the breaker at {what} ({ev.owner.side.value} half of row {ev.owner.r + 1})",
+                    problems=tuple(p for p in ev.w.problems if p.severity == Severity.ERROR),
+                )
+            )
+            continue
+        row, circuit, tag, twice = _half_row(
+            ev, plan, panels, maps[ev.side], panel_col, width, claimed, offset + len(out)
+        )
+        # a slot claimed twice stays out of the panel: its own message says more than an overlap would
+        if circuit is not None and tag is not None and tag in panels and not twice:
+            by_panel.setdefault(tag, []).append((offset + len(out), circuit))
+        out.append(row)
+    if inferring:
+        halves = " and ".join(s.value for s in sides if s in inferring)
+        notes.append(
+            f"sheet {plan.sheet!r}: no circuit-number column on the {halves} half; slots are inferred from the row "
+            f"order (the n-th table row holds slot 2n-1 on the left and 2n on the right; blank rows inside the "
+            f"table count as rows). Map a 'slot' column if the sheet has one."
+        )
+    return _TwoColumnRows(out, notes)
+
+
+def _ignored_row(plan: SheetPlan, r: int, values: tuple[CellValue, ...], width: int, why: str) -> PreviewRow:
+    return PreviewRow(sheet=plan.sheet, sheet_row=r + 1, values=values, width=width, ignored=why)
+
+
+def _half_row(
+    h: _Half,
+    plan: SheetPlan,
+    panels: dict[str, Panel],
+    cmap: ColumnMap,
+    panel_col: int | None,
+    width: int,
+    claimed: dict[tuple[str, int], _Half],
+    index: int,
+) -> tuple[PreviewRow, Circuit | None, str | None, bool]:
+    """The preview row of one half (with its continuation rows merged); True when its slot is taken."""
+    w = h.w
+    tag = plan.panel
+    if tag is None and panel_col is not None:
+        tag = _text(h.values[panel_col]) if panel_col < len(h.values) else ""
+        if not tag:
+            w.problems.append(CellProblem("no panel tag", panel_col, "panel"))
+        elif tag not in panels:
+            w.problems.append(CellProblem(f"panel {tag!r} is not in this project", panel_col, "panel"))
+            tag = None
+
+    def row(**kw: object) -> PreviewRow:
+        return PreviewRow(
+            sheet=plan.sheet,
+            sheet_row=h.r + 1,
+            values=h.values,
+            width=width,
+            panel=tag,
+            side=h.side.value,
+            slot_inferred=h.inferred,
+            problems=tuple(w.problems),
+            **kw,  # type: ignore[arg-type]
+        )
+
+    slot_col = cmap.column(Role.SLOT)
+    if "slot" not in w.raw:
+        if h.slot is None:
+            if not any(p.field == "slot" for p in w.problems):
+                w.problems.append(CellProblem(f"no slot number in the {h.side.value} half", slot_col, "slot"))
+            return row(), None, tag, False
+        w.raw["slot"] = h.slot
+    if h.conts:
+        _merge_continuations(h)
+    circuit, phases = _make_circuit(w, tag, panels.get(tag) if tag else None, cmap, index, row_phase=True)
+    twice = False
+    if circuit is not None:
+        odd = circuit.slot % 2 == 1
+        if odd != (h.side == Side.LEFT) and not h.inferred:
+            w.problems.append(
+                CellProblem(
+                    f"slot {circuit.slot} is in the {h.side.value} half, but the {h.side.value} half holds "
+                    f"{'odd' if h.side == Side.LEFT else 'even'} slots (odd left, even right); check the circuit "
+                    "column or the layout",
+                    slot_col,
+                    "slot",
+                    Severity.WARNING,
+                )
+            )
+        if tag is not None:
+            first = claimed.get((tag, circuit.slot))
+            if first is not None:
+                first_col = _slot_column_of(first, plan.mapping)
+                here = f"column {column_letter(slot_col)}" if slot_col is not None else "inferred from the row order"
+                there = f"column {column_letter(first_col)}" if first_col is not None else "inferred from the row order"
+                w.problems.append(
+                    CellProblem(
+                        f"slot {circuit.slot} is claimed twice: by the {first.side.value} half of row {first.r + 1} "
+                        f"({there}) and by the {h.side.value} half of row {h.r + 1} ({here})",
+                        slot_col,
+                        "slot",
+                    )
+                )
+                twice = True
+            else:
+                claimed[(tag, circuit.slot)] = h
+    return row(circuit=circuit, phases=phases), circuit, tag, twice
+
+
+def _slot_column_of(h: _Half, cmap: ColumnMap) -> int | None:
+    return cmap.side_map(h.side).column(Role.SLOT)
+
+
+def _merge_continuations(h: _Half) -> None:
+    """Poles and load of a breaker from its continuation rows (before the engine reads the circuit)."""
+    w = h.w
+    poles = 1 + len(h.conts)
+    if "poles" not in w.raw:
+        w.raw["poles"] = h.mark_poles or poles
+        w.columns.setdefault("poles", -1)
+    loads = [(x.r, x.w.load) for x in [h, *h.conts] if x.w.load is not None]
+    if len(loads) < 2 and not (loads and w.load is None):
+        return
+    units = {load[1] for _, load in loads}
+    col = loads[0][1][2]
+    if Role.LOAD_AMPS in units:
+        # line current of a multi-pole load: the same on every row; the first row's is used
+        if w.load is None:
+            w.load = loads[0][1]
+        if len({load[0] for _, load in loads}) > 1:
+            w.problems.append(
+                CellProblem(
+                    "the rows of this breaker give different currents; the first row's is used",
+                    col,
+                    "va",
+                    Severity.WARNING,
+                )
+            )
+        return
+    total = sum(v * 1000.0 if unit == Role.LOAD_KVA else v for _, (v, unit, _c) in loads)
+    w.load = (total, Role.LOAD_VA, col)
+    if len(loads) > 1:
+        rows = ", ".join(str(r + 1) for r, _ in loads)
+        w.problems.append(
+            CellProblem(
+                f"load {total:,.0f} VA is the sum of the breaker's rows {rows} (each row holds one pole's share)",
+                col,
+                "va",
+                Severity.WARNING,
+            )
+        )
