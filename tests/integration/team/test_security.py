@@ -454,3 +454,19 @@ def test_reviewer_sees_a_read_only_panel_editor(app, client, demo_id):
     page = _browser(app, "engineer").get(f"/projects/{demo_id}/panels/{tag}")
     assert 'id="balance-open"' in page.text and 'id="read-only-note"' not in page.text
     assert re.search(r'<fieldset class="grid-set" id="grid-set">', page.text)
+
+
+def test_reviewer_screens_offer_no_changes(app, client, demo_id):
+    rev, eng = _browser(app, "reviewer"), _browser(app, "engineer")
+    tx = app.state.services.snapshot(demo_id).model.transformers[0].tag
+    checks = [
+        ("/", 'id="new-project"'),
+        (f"/projects/{demo_id}/tree", 'id="add-node"'),
+        (f"/projects/{demo_id}/tree", "/move"),
+    ]
+    for url, marker in checks:
+        assert marker not in rev.get(url).text, (url, marker)
+        assert marker in eng.get(url).text, (url, marker)
+    for url in (f"/projects/{demo_id}/settings", f"/projects/{demo_id}/transformers/{tx}"):
+        assert re.search(r'<fieldset class="grid-set" disabled>', rev.get(url).text), url
+        assert re.search(r'<fieldset class="grid-set">', eng.get(url).text), url
