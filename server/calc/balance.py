@@ -220,7 +220,8 @@ class FeedLoad:
 
     ``va`` is the connected VA of everything below it.  For a panel fed from this one (same
     system: the project file requires it) ``phase_va`` and ``neutral_a`` give what it presents
-    phase by phase — its phase A on this panel's A, as the engine counts it — so the fixed load
+    phase by phase — its phase A on this panel's A (on index r when its ``feeder_rotation`` is r),
+    as the engine counts it — so the fixed load
     of the sub-feed is exact, not a third on each phase.  Without them (a transformer below)
     the trade convention splits ``va`` evenly over the breaker's poles.
     """
@@ -359,6 +360,11 @@ def presented_load(project: Project, tag: str, include_future: bool, _seen: froz
         for p, x in contribution.items():
             phase_va[p] += x
         neutral += n
+    if panel.feeder_rotation and len(phase_va) == 3:
+        # Landed rotated: the parent sees the phases relabelled and the phasors turned by
+        # exp(−j·120°·r), as the engine does (server.calc.engine._rotated).
+        phase_va = rotate_phase_va(phase_va, panel.feeder_rotation)
+        neutral *= cmath.rect(1.0, -2.0 * math.pi * panel.feeder_rotation / 3.0)
     return FeedLoad(total, phase_va, neutral)
 
 
@@ -1273,6 +1279,14 @@ class TransformerBalanceProposal:
             "notes": list(self.notes),
         }
 
+    def applied_panels(self) -> tuple[Panel, ...]:
+        """Each panel with its in-panel moves applied and its proposed ``feeder_rotation`` set
+        (what a project written with this proposal holds)."""
+        rotation = {r.panel_tag: r.feeder_rotation for r in self.rotations if r.rotatable}
+        return tuple(
+            replace(p.panel, feeder_rotation=rotation.get(p.panel_tag, p.panel.feeder_rotation)) for p in self.panels
+        )
+
 
 def rotation_landing(rotation: int) -> str:
     """Installer's words for a rotation: which upstream terminal each panel phase lands on."""
@@ -1355,6 +1369,11 @@ def balance_transformer(
     proposals.extend(by_tag[panel.tag] for panel, _parent in members)
 
     phases = spec.phases if spec else ("A",)
+    # The rotations as landed now (each feeder_rotation is relative to the feeding panel; a panel
+    # fed straight from the transformer is relative to the transformer): absolute per panel.
+    existing: dict[str, int] = {}
+    for p, parent in members:  # parents come before their sub-panels
+        existing[p.tag] = (p.feeder_rotation + (existing.get(parent, 0) if parent else 0)) % 3
     before_loads = [_own_phase_va(project, p, future) for p, _ in members]
     after_loads = [_own_phase_va(current, current.panel(p.tag) or p, future) for p, _ in members]
     rotatable = [rotatable_system for _ in members]
@@ -1387,13 +1406,13 @@ def balance_transformer(
         "a three-phase panel fed by its own feeder may have its feeder landed in a cyclic rotation "
         "(A→B→C), which relabels its phases and keeps the phase sequence; high-leg and single-phase "
         "panels are never rotated",
-        "feeder rotations are field instructions: the project file has no field for them, so a written "
-        "file carries only the in-panel moves",
+        "each feeder rotation is relative to the panel feeding it (the installer's landing); applying the "
+        "proposal stores it as the panel's feeder_rotation",
     ]
     return TransformerBalanceProposal(
         transformer_tag=tag,
         secondary=xfmr.secondary,
-        before_phase_va=summed(before_loads, [0] * len(members)),
+        before_phase_va=summed(before_loads, [existing[p.tag] for p, _ in members]),
         after_phase_va=summed(after_loads, rots),
         rotations=rotations,
         panels=tuple(proposals),

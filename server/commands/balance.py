@@ -5,7 +5,8 @@ the safety caution), or with ``--json`` the proposal object (caution on stderr s
 output stays plain JSON).  ``--out NEW_FILE`` writes the whole project with the proposal
 applied, after checking that it parses again.  ``--transformer TAG`` instead balances a
 transformer secondary: every panel on it is balanced and a feeder rotation is proposed for each
-rotatable panel (see :func:`server.calc.balance.balance_transformer`).
+rotatable panel (see :func:`server.calc.balance.balance_transformer`); ``--out`` then also
+stores each panel's proposed ``feeder_rotation``.
 
 Moves are a permutation applied at once: each ``{"from_slot", "to_slot"}`` says the breaker
 whose first slot is ``from_slot`` gets first slot ``to_slot``; undo by swapping the two.
@@ -131,7 +132,7 @@ def command(
             panels = (proposal.panel,)
         else:
             proposal = balance_transformer(project, transformer_tag or "", options)
-            panels = tuple(p.panel for p in proposal.panels)
+            panels = proposal.applied_panels()  # in-panel moves and each panel's feeder_rotation
     except ProjectFileError as exc:
         exc.source = exc.source or file
         fail(exc.describe())

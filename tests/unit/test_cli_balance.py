@@ -112,7 +112,10 @@ def test_transformer_mode(tmp_path: Path) -> None:
     assert data["transformer"] == xfmr.tag
     assert max(data["after"]["phase_va"].values()) <= max(data["before"]["phase_va"].values()) + 0.1
     assert all({"panel", "rotation", "feeder_rotation", "feeder_landing"} <= set(r) for r in data["rotations"])
-    load_project_file(out)
+    written = load_project_file(out)
+    # --out stores each panel's proposed feeder rotation (relative to the panel feeding it).
+    for rot in data["rotations"]:
+        assert written.panel(rot["panel"]).feeder_rotation == rot["feeder_rotation"]
     text = _run(str(DEMO_FILE), "--transformer", xfmr.tag)
     assert "feeder landings" in text.output and CAUTION in text.output
 

@@ -43,9 +43,10 @@ from server.calc.balance import (
     phase_va_lower_bound,
     rotate_phase_va,
 )
+from server.calc.engine import compute_project
 from server.calc.errors import ProjectFileError
 from server.calc.model import Circuit, Panel, Status
-from server.calc.projectfile import check_panel, load_project_file
+from server.calc.projectfile import check_panel, dump_project, load_project_file, parse_project, replace_panel
 from server.calc.systems import SYSTEMS, breaker_phases, breaker_slots, slot_phase, slot_side
 from tests.helpers import DEMO_FILE, assert_close
 
@@ -752,3 +753,58 @@ def test_balance_core_imports_without_scipy() -> None:
     assert proc.returncode == 0, proc.stderr
     top = set(json.loads(proc.stdout.strip().splitlines()[-1]))
     assert not top & {"numpy", "scipy"}
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_applied_transformer_proposal_stores_rotations_the_engine_agrees_with(seed: int) -> None:
+    rng = random.Random(seed)
+    project = _xfmr_project(rng, sub_count=3)
+    prop = balance_transformer(project, "TX")
+    applied = project
+    for panel in prop.applied_panels():
+        applied = replace_panel(applied, panel)
+    applied = parse_project(dump_project(applied))  # the stored rotations are valid project-file values
+    stored = {p.tag: p.feeder_rotation for p in applied.panels}
+    assert stored == {r.panel_tag: r.feeder_rotation for r in prop.rotations}
+    # The engine, fed the stored rotations, sees at the secondary what the proposal promised: DP is
+    # the one panel on TX, landed with DP's rotation (its sub-panels relative to DP).
+    res = compute_project(applied)
+    secondary = rotate_phase_va(res.panels["DP"].connected_va, stored["DP"])
+    for phase, va in prop.after_phase_va.items():
+        assert secondary[phase] == pytest.approx(va, rel=1e-9, abs=1e-6)
+    # Balancing again starts from the stored rotations: nothing left to gain.
+    again = balance_transformer(applied, "TX")
+    for phase, va in prop.after_phase_va.items():
+        assert again.before_phase_va[phase] == pytest.approx(va, rel=1e-9, abs=1e-6)
+    assert max(again.after_phase_va.values()) == pytest.approx(max(prop.after_phase_va.values()), rel=1e-9)
+
+
+def test_a_rotated_sub_panel_presents_its_load_relabelled_to_the_panel_feeding_it() -> None:
+    from server.calc.balance import presented_load
+
+    data = {
+        "format": "panelwright.project",
+        "version": 1,
+        "project": {"name": "Rotation feed (invented)"},
+        "sources": [{"tag": "S", "system": "208Y/120 3PH 4W"}],
+        "panels": [
+            {
+                "tag": "D",
+                "system": "208Y/120 3PH 4W",
+                "fed_from": "S",
+                "circuits": [{"slot": 1, "poles": 3, "feeds": "P"}],
+            },
+            {
+                "tag": "P",
+                "system": "208Y/120 3PH 4W",
+                "feeder_rotation": 1,
+                "circuits": [{"slot": 1, "va": 1200, "pf": 1.0}],
+            },
+        ],
+    }
+    project = parse_project(data)
+    load = presented_load(project, "P", False)
+    assert load.phase_va == {"A": 0.0, "B": 1200.0, "C": 0.0}  # P's A lands on D's B
+    assert_close(abs(load.neutral_a), 10.0)  # 1 200 VA / 120 V, on D's B: angle −120°
+    assert_close(math.degrees(cmath.phase(load.neutral_a)), -120.0, abs_=1e-6)
+    assert panel_loading(project.panel("D"), feeds_va={"P": load}).phase_va == {"A": 0.0, "B": 1200.0, "C": 0.0}
