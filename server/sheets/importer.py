@@ -131,6 +131,8 @@ class ImportPreview:
                     where.append(f"panel {r.panel}")
                 if r.circuit is not None:
                     where.append(f"slot {r.circuit.slot}")
+                if p.column is not None:
+                    where.append(f"column {column_letter(p.column)}")
                 if p.field:
                     where.append(p.field)
                 lines.append(f"{p.severity.value}: " + ", ".join(where) + f": {p.message}")
@@ -732,12 +734,12 @@ def _continues(owner: _Half, content: dict[int, CellValue], roles: Sequence[Role
             marks += 1
             mark_poles = p or mark_poles
             continue
+        if roles[c] in LOAD_ROLES and to_number(v) is not None:
+            loads += 1
+            continue
         first = owner.values[c] if c < len(owner.values) else None
         if first not in (None, "") and normalise(_text(v)) == normalise(_text(first)):
             repeated_description |= roles[c] == Role.DESCRIPTION
-            continue
-        if roles[c] in LOAD_ROLES and to_number(v) is not None:
-            loads += 1
             continue
         return False, None
     if stated is not None:

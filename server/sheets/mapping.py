@@ -561,7 +561,7 @@ def parse_overrides(text_or_data: str | Mapping[str, Any], grid: Grid, base: Col
             index = _find_column(cmap, str(key), cmap.block(side) if side is not None else None)
             if index is None:
                 where = f"a header of the {part} half" if side is not None else "a header of the sheet"
-                raise MappingError(f"{part} {key!r} is neither a column letter nor {where}")
+                raise MappingError(f"{part.rstrip('s')} {key!r} is neither a column letter nor {where}")
             cmap = cmap.with_role(index, role)
     return cmap
 

@@ -164,7 +164,7 @@ def test_errors_in_rows_refuse_the_write(store, tmp_path):
     res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--yes"])
     assert res.exit_code == 2
     assert (
-        f"clash.csv, sheet 'clash', row 3, panel {leaf.tag}, slot 3, slot: the breakers at slots 1 and 3 overlap"
+        f"clash.csv, sheet 'clash', row 3, panel {leaf.tag}, slot 3, column A, slot: the breakers at slots 1 and 3 overlap"
         in res.stderr
     )
     assert "nothing was written" in res.stderr
