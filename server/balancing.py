@@ -16,6 +16,10 @@ the same call ``panelwright balance`` makes, so the preview and the CLI agree.
   circuit's ``version`` go up; and ONE audit row records the whole rearrangement (who, and for
   each moved entry its slot before and after).  Undo is the same call with the inverse moves.
 
+A transformer secondary (:func:`preview_secondary`, :func:`rearrange_secondary`) works the same
+way over every panel on it: each panel's moves and its proposed ``feeder_rotation`` are written in
+one transaction with one audit row, and undo puts back the slots and the rotations as they were.
+
 Why a fingerprint of the panel and not the project's ``data_version``: a colleague editing
 another panel must not make a preview of this one unusable; the moves only need this panel's
 circuits to be what the preview saw.
@@ -51,9 +55,12 @@ from server.calc.balance import (
     BalanceProposal,
     Move,
     Objective,
+    TransformerBalanceProposal,
     apply_moves,
     balance_panel_in_project,
+    balance_transformer,
     inverse_moves,
+    secondary_panel_tags,
 )
 from server.calc.errors import CalcError, Problem, ProjectFileError
 from server.calc.model import Panel, Project, ProjectInfo
@@ -394,4 +401,275 @@ def rearrange(
         new_snap = svc.snapshot(project_id)
         stored = _panel(new_snap, tag)
         return Rearranged(new_snap, tag, action, moves, before, stored, panel_fingerprint(stored))
+    raise Conflict("the project kept changing while this rearrangement was saved; preview again")
+
+
+# --------------------------------------------------------------------------- a transformer secondary
+#
+# The same pattern for a whole transformer secondary (:func:`server.calc.balance.balance_transformer`):
+# each panel on it gets its in-panel moves AND its proposed feeder rotation, all in ONE
+# transaction with ONE audit row; undo is the same call with each panel's inverse moves and its
+# rotation as it was.  The fingerprint covers every panel on the secondary.
+
+ACTION_APPLY_SECONDARY = "balance-secondary"
+ACTION_UNDO_SECONDARY = "undo-secondary"
+
+
+@dataclass(frozen=True)
+class PanelPlan:
+    """What applying a secondary proposal does to one panel: its moves and its feeder rotation."""
+
+    tag: str
+    moves: tuple[Move, ...]
+    feeder_rotation: int
+
+
+def format_plan(plans: Sequence[PanelPlan]) -> str:
+    """Plans as the form carries them (JSON: panel, feeder_rotation, moves as ``"1:3 2:10"``)."""
+    return json.dumps(
+        [{"panel": p.tag, "feeder_rotation": p.feeder_rotation, "moves": format_moves(p.moves)} for p in plans],
+        ensure_ascii=False,
+    )
+
+
+def parse_plan(text: str | None, tag: str) -> tuple[PanelPlan, ...]:
+    """The inverse of :func:`format_plan`; :class:`EditRejected` naming what is wrong otherwise."""
+    again = "preview again and apply from there"
+    try:
+        raw = json.loads(text or "")
+    except json.JSONDecodeError:
+        raise EditRejected([Problem(f"the plan was not sent whole: {again}", tag, field="plan")]) from None
+    if not isinstance(raw, list) or not raw:
+        raise EditRejected([Problem(f"no plan was sent: {again}", tag, field="plan")])
+    plans: list[PanelPlan] = []
+    for item in raw:
+        if not isinstance(item, dict) or not isinstance(item.get("panel"), str):
+            raise EditRejected([Problem(f"a plan item names no panel: {again}", tag, field="plan")])
+        panel_tag = item["panel"]
+        rotation = item.get("feeder_rotation")
+        if rotation not in pf.FEEDER_ROTATIONS or isinstance(rotation, bool):
+            raise EditRejected(
+                [Problem(f"feeder_rotation must be 0, 1 or 2, not {rotation!r}", panel_tag, field="feeder_rotation")]
+            )
+        moves_text = item.get("moves") or ""
+        moves = parse_moves(moves_text, panel_tag) if str(moves_text).strip() else ()
+        plans.append(PanelPlan(panel_tag, moves, rotation))
+    return tuple(plans)
+
+
+def secondary_fingerprint(project: Project, tags: Sequence[str]) -> str:
+    """SHA-256 (hex) over the fingerprints of the panels ``tags`` (each as :func:`panel_fingerprint`)."""
+    parts = []
+    for t in sorted(tags):
+        panel = project.panel(t)
+        parts.append(f"{t}={panel_fingerprint(panel) if panel is not None else '-'}")
+    return hashlib.sha256("\n".join(parts).encode("utf-8")).hexdigest()
+
+
+class SecondaryChanged(Conflict):
+    """A panel on the secondary changed between the preview and the apply (or undo); nothing was written."""
+
+    def __init__(self, tag: str) -> None:
+        self.tag = tag
+        super().__init__(
+            f"a panel on the secondary of {tag} was changed since this preview was made; nothing was written. "
+            "Preview again to balance what is stored now."
+        )
+
+
+@dataclass(frozen=True)
+class SecondaryPreview:
+    """A proposal for a transformer secondary of the stored project, and what the apply form sends back."""
+
+    snapshot: Snapshot
+    tag: str
+    proposal: TransformerBalanceProposal
+    fingerprint: str
+
+    @property
+    def plans(self) -> tuple[PanelPlan, ...]:
+        rotation = {r.panel_tag: r.feeder_rotation for r in self.proposal.rotations if r.rotatable}
+        stored = {p.tag: p.feeder_rotation for p in self.snapshot.model.panels}
+        return tuple(
+            PanelPlan(p.panel_tag, p.moves, rotation.get(p.panel_tag, stored.get(p.panel_tag, 0)))
+            for p in self.proposal.panels
+        )
+
+    @property
+    def plan_text(self) -> str:
+        return format_plan(self.plans)
+
+
+def _transformer_tags(snap: Snapshot, tag: str) -> tuple[str, ...]:
+    if snap.model.transformer(tag) is None:
+        raise NotFound(f"project {snap.info.number or snap.project_id} has no transformer {tag}")
+    return secondary_panel_tags(snap.model, tag)
+
+
+def preview_secondary(svc: Services, project_id: int, tag: str, options: BalanceOptions) -> SecondaryPreview:
+    """Run the transformer balancer on ``tag``'s secondary as stored now.  Writes nothing."""
+    snap = svc.snapshot(project_id)
+    tags = _transformer_tags(snap, tag)
+    try:
+        proposal = balance_transformer(snap.model, tag, options)
+    except ProjectFileError as exc:
+        raise EditRejected(exc.problems) from None
+    except (CalcError, ValueError) as exc:
+        raise EditRejected([Problem(f"cannot balance: {exc}", tag)]) from None
+    return SecondaryPreview(snap, tag, proposal, secondary_fingerprint(snap.model, tags))
+
+
+@dataclass(frozen=True)
+class SecondaryRearranged:
+    """The outcome of a secondary apply (or undo): the project after it, and how to undo it."""
+
+    snapshot: Snapshot
+    tag: str
+    action: str
+    plans: tuple[PanelPlan, ...]  # what was applied
+    undo_plans: tuple[PanelPlan, ...]  # what puts it back
+    fingerprint: str  # of the secondary after the write: what the undo form sends back
+    breakers_moved: int
+    landings_changed: int
+
+    @property
+    def undo_plan_text(self) -> str:
+        return format_plan(self.undo_plans)
+
+
+def rearrange_secondary(
+    svc: Services,
+    project_id: int,
+    tag: str,
+    plans: Sequence[PanelPlan],
+    *,
+    expected_fingerprint: str,
+    action: str = ACTION_APPLY_SECONDARY,
+) -> SecondaryRearranged:
+    """Apply ``plans`` (moves and feeder rotations) to the panels on ``tag``'s secondary as ONE edit
+    with ONE audit row.
+
+    Raises :class:`SecondaryChanged` when the stored panels no longer have
+    ``expected_fingerprint``, :class:`EditRejected` when a plan is not valid for them (naming
+    panel, slot and field), :class:`NotFound` for an unknown project or transformer.
+    """
+    plans = tuple(plans)
+    for _attempt in range(3):
+        snap = svc.snapshot(project_id)
+        tags = _transformer_tags(snap, tag)
+        if secondary_fingerprint(snap.model, tags) != expected_fingerprint:
+            raise SecondaryChanged(tag)
+        problems: list[Problem] = []
+        seen: set[str] = set()
+        befores: dict[str, Panel] = {}
+        afters: dict[str, Panel] = {}
+        for plan in plans:
+            if plan.tag not in tags or plan.tag in seen:
+                what = "is named twice in the plan" if plan.tag in seen else f"is not on the secondary of {tag}"
+                problems.append(Problem(what, plan.tag, field="plan"))
+                continue
+            seen.add(plan.tag)
+            before = _panel(snap, plan.tag)
+            _check_movable(before, plan.moves)
+            try:
+                after = apply_moves(before, plan.moves) if plan.moves else before
+            except ProjectFileError as exc:
+                raise EditRejected(exc.problems) from None
+            after = replace(
+                after,
+                circuits=tuple(sorted(after.circuits, key=lambda c: c.slot)),
+                feeder_rotation=plan.feeder_rotation,
+            )
+            befores[plan.tag], afters[plan.tag] = before, after
+        if problems:
+            raise EditRejected(problems)
+        new_model = snap.model
+        for after in afters.values():
+            new_model = pf.replace_panel(new_model, after)
+        try:  # the whole project once more, exactly as it will be stored (rotations need the topology)
+            pf.parse_project(pf.dump_project(new_model))
+        except ProjectFileError as exc:
+            raise EditRejected(exc.problems) from None
+        before_json: dict[str, Any] = {}
+        after_json: dict[str, Any] = {}
+        for plan in plans:
+            before, after = befores[plan.tag], afters[plan.tag]
+            used: set[str] = set()
+            slots_before: dict[str, int] = {}
+            slots_after: dict[str, int] = {}
+            for m in plan.moves:
+                c = before.circuit_at(m.from_slot)
+                assert c is not None  # apply_moves refused unknown slots
+                key = _audit_key(c, used)
+                slots_before[key], slots_after[key] = m.from_slot, m.to_slot
+            if not plan.moves and before.feeder_rotation == after.feeder_rotation:
+                continue
+            before_json[plan.tag] = {"feeder_rotation": before.feeder_rotation, "slots": slots_before}
+            after_json[plan.tag] = {"feeder_rotation": after.feeder_rotation, "slots": slots_after}
+        with svc.sessions() as s, s.begin():
+            if not repo.bump_data_version(s, project_id=project_id, expected=snap.data_version):
+                continue  # someone wrote meanwhile: read again (the fingerprint decides)
+            for plan in plans:
+                panel_id = repo.panel_id(s, project_id=project_id, tag=plan.tag)
+                if panel_id is None:
+                    raise NotFound(f"project {project_id} has no panel {plan.tag}")
+                if befores[plan.tag].feeder_rotation != plan.feeder_rotation:
+                    s.execute(
+                        update(db.Panel)
+                        .where(db.Panel.id == panel_id)
+                        .values(feeder_rotation=plan.feeder_rotation)
+                        .execution_options(synchronize_session=False)
+                    )
+                if not plan.moves:
+                    continue
+                rows = s.execute(
+                    select(db.Circuit.id, db.Circuit.slot, db.Circuit.version).where(db.Circuit.panel_id == panel_id)
+                ).all()
+                by_slot = {r.slot: r for r in rows}
+                new_version = max((r.version or 0 for r in rows), default=0) + 1
+                moved = [(by_slot[m.from_slot].id, m.to_slot) for m in plan.moves]
+                for i, (cid, _to) in enumerate(moved):  # lift, then set down: (panel_id, slot) stays unique
+                    s.execute(
+                        update(db.Circuit)
+                        .where(db.Circuit.id == cid)
+                        .values(slot=-(i + 1))
+                        .execution_options(synchronize_session=False)
+                    )
+                for cid, to_slot in moved:
+                    s.execute(
+                        update(db.Circuit)
+                        .where(db.Circuit.id == cid)
+                        .values(slot=to_slot, version=new_version)
+                        .execution_options(synchronize_session=False)
+                    )
+            s.execute(
+                insert(db.AuditEvent),
+                [
+                    {
+                        "at": datetime.now(UTC),
+                        "user_name": audit.ACTOR.get()[:60],
+                        "project_id": project_id,
+                        "panel_tag": None,
+                        "action": action,
+                        "target": f"transformer {tag} secondary"[:120],
+                        "before_json": json.dumps(before_json, sort_keys=True, ensure_ascii=False),
+                        "after_json": json.dumps(after_json, sort_keys=True, ensure_ascii=False),
+                    }
+                ],
+            )
+        svc.cache.drop(project_id)  # several panels changed: the next read rebuilds the calculator
+        new_snap = svc.snapshot(project_id)
+        undo = tuple(PanelPlan(p.tag, inverse_moves(p.moves), befores[p.tag].feeder_rotation) for p in plans)
+        moved_breakers = sum(1 for p in plans for m in p.moves if not _is_space(befores[p.tag], m.from_slot))
+        changed = sum(1 for p in plans if befores[p.tag].feeder_rotation != p.feeder_rotation)
+        return SecondaryRearranged(
+            new_snap,
+            tag,
+            action,
+            plans,
+            undo,
+            secondary_fingerprint(new_snap.model, _transformer_tags(new_snap, tag)),
+            moved_breakers,
+            changed,
+        )
     raise Conflict("the project kept changing while this rearrangement was saved; preview again")

@@ -1312,6 +1312,12 @@ def _secondary_panels(project: Project, xfmr_tag: str) -> list[tuple[Panel, str 
     return out
 
 
+def secondary_panel_tags(project: Project, xfmr_tag: str) -> tuple[str, ...]:
+    """Tags of the panels on transformer ``xfmr_tag``'s secondary (down to the next transformer),
+    from the transformer down: the panels a transformer proposal may change."""
+    return tuple(p.tag for p, _parent in _secondary_panels(project, xfmr_tag))
+
+
 def _own_phase_va(project: Project, panel: Panel, include_future: bool) -> dict[str, float]:
     """Phase VA of a panel's own circuits; feeders of panels on the same secondary are left out
     (their load is counted in those panels, rotated by their own rotation)."""
@@ -1448,5 +1454,6 @@ __all__ = [
     "rotation_landing",
     "solve_heuristic",
     "rotate_phase_va",
+    "secondary_panel_tags",
     "subtree_va",
 ]

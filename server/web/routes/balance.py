@@ -5,6 +5,10 @@ route answers with a fragment for ``#balance-area`` of the panel page (after an 
 also the grid rows, phase totals, summary and upstream badges, out of band); without htmx the
 same routes render a page of their own, so everything also works without script.
 
+A transformer secondary has a page of its own (``/projects/{pid}/transformers/{tag}/balance``,
+no htmx needed): every panel on it balanced plus each panel's feeder landing, applied as one
+edit with one audit row and undone the same way (:func:`server.balancing.rearrange_secondary`).
+
 Permissions: preview, apply and undo all ask for ``edit``.  The preview writes nothing, but it
 is a step of changing the panel, and a reviewer cannot apply it.
 """
@@ -21,12 +25,12 @@ from server import balancing
 from server.auth.permissions import Require
 from server.auth.roles import Permission
 from server.balancing import ArrangementChanged, BalancePreview, Rearranged
-from server.calc.balance import Objective, inverse_moves
+from server.calc.balance import BalanceOptions, Objective, inverse_moves
 from server.calc.errors import Problem
 from server.calc.model import Panel
 from server.services import EditRejected, NotFound, Snapshot
 from server.web.deps import FormDep, HtmxDep, ServicesDep, TemplatesDep
-from server.web.views import Page, PairRow, PanelContext, page, panel_context, panel_rows
+from server.web.views import Page, PairRow, PanelContext, feeder_landing_words, page, panel_context, panel_rows
 
 EDIT = [Depends(Require(Permission.EDIT))]
 
@@ -276,3 +280,185 @@ def _rearrange(
         undo_fingerprint=done.fingerprint,
     )
     return _render(request, templates, htmx, "balance/_outcome.html", ctx)
+
+
+# --------------------------------------------------------------------------- a transformer secondary
+
+SECONDARY = "/projects/{pid}/transformers/{tag}/balance"
+
+
+def secondary_url(pid: int, tag: str, what: str = "") -> str:
+    return f"/projects/{pid}/transformers/{quote(tag, safe='')}/balance" + (f"/{what}" if what else "")
+
+
+@dataclass(frozen=True)
+class LandingRow:
+    """One panel of a secondary proposal: its feeder landing now and proposed, and its moves."""
+
+    tag: str
+    rotatable: bool
+    landing_now: str
+    landing_proposed: str
+    breaker_moves: int
+
+
+@dataclass(frozen=True)
+class SecondaryContext:
+    """The secondary balance page: options, the proposal (or the outcome of an apply/undo)."""
+
+    page: Page
+    pid: int
+    tag: str
+    secondary: str
+    values: dict[str, str]
+    errors: dict[str, str] = field(default_factory=dict)
+    preview: balancing.SecondaryPreview | None = None
+    loading: tuple[LoadingRow, ...] = ()
+    landings: tuple[LandingRow, ...] = ()
+    message: str = ""
+    error: bool = False
+    done: balancing.SecondaryRearranged | None = None
+    objectives: tuple[str, ...] = tuple(o.value for o in Objective)
+
+    @property
+    def preview_url(self) -> str:
+        return secondary_url(self.pid, self.tag)
+
+    @property
+    def apply_url(self) -> str:
+        return secondary_url(self.pid, self.tag, "apply")
+
+    @property
+    def undo_url(self) -> str:
+        return secondary_url(self.pid, self.tag, "undo")
+
+    @property
+    def transformer_url(self) -> str:
+        return f"/projects/{self.pid}/transformers/{quote(self.tag, safe='')}"
+
+
+def _secondary_context(
+    snap: Snapshot,
+    tag: str,
+    values: dict[str, str],
+    *,
+    errors: dict[str, str] | None = None,
+    pv: balancing.SecondaryPreview | None = None,
+    message: str = "",
+    error: bool = False,
+    done: balancing.SecondaryRearranged | None = None,
+) -> SecondaryContext:
+    xfmr = snap.model.transformer(tag)
+    if xfmr is None:
+        raise NotFound(f"project {snap.info.number or snap.project_id} has no transformer {tag}")
+    loading: tuple[LoadingRow, ...] = ()
+    landings: tuple[LandingRow, ...] = ()
+    if pv is not None:
+        p = pv.proposal
+        loading = tuple(
+            LoadingRow(f"Phase {ph} (VA)", f"phase-{ph}", _va(p.before_phase_va[ph]), _va(p.after_phase_va[ph]))
+            for ph in p.before_phase_va
+        ) + (
+            LoadingRow(
+                "Largest phase (VA)",
+                "max-phase",
+                _va(max(p.before_phase_va.values())),
+                _va(max(p.after_phase_va.values())),
+            ),
+        )
+        moves = {bp.panel_tag: bp.breaker_moves for bp in p.panels}
+        plans = {plan.tag: plan for plan in pv.plans}
+        landings = tuple(
+            LandingRow(
+                r.panel_tag,
+                r.rotatable,
+                feeder_landing_words(_stored_rotation(snap, r.panel_tag)),
+                feeder_landing_words(plans[r.panel_tag].feeder_rotation),
+                moves.get(r.panel_tag, 0),
+            )
+            for r in p.rotations
+        )
+    return SecondaryContext(
+        page=page(snap, f"Balance the secondary of {tag}", "tree"),
+        pid=snap.project_id,
+        tag=tag,
+        secondary=xfmr.secondary,
+        values=values,
+        errors=errors or {},
+        preview=pv,
+        loading=loading,
+        landings=landings,
+        message=message,
+        error=error,
+        done=done,
+    )
+
+
+def _stored_rotation(snap: Snapshot, tag: str) -> int:
+    panel = snap.model.panel(tag)
+    return panel.feeder_rotation if panel is not None else 0
+
+
+def _secondary_page(request: Request, templates: TemplatesDep, ctx: SecondaryContext, status: int = 200) -> Response:
+    return templates.TemplateResponse(
+        request, "balance/secondary.html", {"ctx": ctx, "page": ctx.page}, status_code=status
+    )
+
+
+@router.get(SECONDARY, name="secondary_balance_preview", dependencies=EDIT)
+def secondary_preview(request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep) -> Response:
+    """Balance every panel on the secondary and propose each panel's feeder landing; writes nothing."""
+    form = {k: v for k, v in request.query_params.items() if k in balancing.OPTION_FIELDS}
+    try:
+        options = balancing.parse_options(form)
+    except EditRejected as exc:
+        values = {k: str(form.get(k, "")) for k in balancing.OPTION_FIELDS}
+        ctx = _secondary_context(svc.snapshot(pid), tag, values, errors=exc.by_field())
+        return _secondary_page(request, templates, ctx, 422)
+    values = balancing.option_values(options)
+    try:
+        pv = balancing.preview_secondary(svc, pid, tag, options)
+    except EditRejected as exc:
+        ctx = _secondary_context(svc.snapshot(pid), tag, values, errors=exc.by_field())
+        return _secondary_page(request, templates, ctx, 422)
+    return _secondary_page(request, templates, _secondary_context(pv.snapshot, tag, values, pv=pv))
+
+
+@router.post(SECONDARY + "/apply", name="secondary_balance_apply", dependencies=EDIT)
+def secondary_apply(request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: FormDep):
+    """Apply the previewed moves and feeder landings as one edit (409 if a panel changed since the preview)."""
+    return _rearrange_secondary(request, pid, tag, svc, templates, form, balancing.ACTION_APPLY_SECONDARY)
+
+
+@router.post(SECONDARY + "/undo", name="secondary_balance_undo", dependencies=EDIT)
+def secondary_undo(request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: FormDep):
+    """Put back the slots and feeder landings an apply replaced (409 if a panel changed since)."""
+    return _rearrange_secondary(request, pid, tag, svc, templates, form, balancing.ACTION_UNDO_SECONDARY)
+
+
+def _rearrange_secondary(
+    request: Request, pid: int, tag: str, svc: ServicesDep, templates: TemplatesDep, form: dict, action: str
+) -> Response:
+    values = balancing.option_values(BalanceOptions())
+    applying = action == balancing.ACTION_APPLY_SECONDARY
+
+    def refused(message: str, status: int) -> Response:
+        ctx = _secondary_context(svc.snapshot(pid), tag, values, message=message, error=True)
+        return _secondary_page(request, templates, ctx, status)
+
+    fingerprint = str(form.get("fingerprint") or "").strip()
+    try:
+        plans = balancing.parse_plan(form.get("plan"), tag)
+        if not fingerprint:
+            raise EditRejected([Problem("missing: preview again and apply from there", tag, field="fingerprint")])
+        done = balancing.rearrange_secondary(svc, pid, tag, plans, expected_fingerprint=fingerprint, action=action)
+    except balancing.SecondaryChanged as exc:
+        return refused(str(exc), 409)
+    except EditRejected as exc:
+        what = "applied" if applying else "undone"
+        return refused(f"Not {what}: " + "; ".join(p.describe() for p in exc.problems), 422)
+    n, k = done.breakers_moved, done.landings_changed
+    what = f"{n} breaker{'s' if n != 1 else ''} moved and {k} feeder landing{'s' if k != 1 else ''} changed"
+    message = f"Balanced: {what} in one edit." if applying else f"Undone: {what} back."
+    ctx = _secondary_context(done.snapshot, tag, values, message=message, done=done if applying else None)
+    return _secondary_page(request, templates, ctx)
