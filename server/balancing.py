@@ -590,8 +590,8 @@ def rearrange_secondary(
             pf.parse_project(pf.dump_project(new_model))
         except ProjectFileError as exc:
             raise EditRejected(exc.problems) from None
-        before_json: dict[str, Any] = {}
-        after_json: dict[str, Any] = {}
+        before_json: dict[str, int] = {}
+        after_json: dict[str, int] = {}
         for plan in plans:
             before, after = befores[plan.tag], afters[plan.tag]
             used: set[str] = set()
@@ -602,10 +602,13 @@ def rearrange_secondary(
                 assert c is not None  # apply_moves refused unknown slots
                 key = _audit_key(c, used)
                 slots_before[key], slots_after[key] = m.from_slot, m.to_slot
-            if not plan.moves and before.feeder_rotation == after.feeder_rotation:
-                continue
-            before_json[plan.tag] = {"feeder_rotation": before.feeder_rotation, "slots": slots_before}
-            after_json[plan.tag] = {"feeder_rotation": after.feeder_rotation, "slots": slots_after}
+            # Flat keys ("P2 feeder_rotation", "P2 slot of lights"), as the history page lists fields.
+            if before.feeder_rotation != after.feeder_rotation:
+                before_json[f"{plan.tag} feeder_rotation"] = before.feeder_rotation
+                after_json[f"{plan.tag} feeder_rotation"] = after.feeder_rotation
+            for key in slots_before:
+                before_json[f"{plan.tag} slot of {key}"] = slots_before[key]
+                after_json[f"{plan.tag} slot of {key}"] = slots_after[key]
         with svc.sessions() as s, s.begin():
             if not repo.bump_data_version(s, project_id=project_id, expected=snap.data_version):
                 continue  # someone wrote meanwhile: read again (the fingerprint decides)

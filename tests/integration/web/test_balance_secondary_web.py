@@ -93,6 +93,9 @@ def test_secondary_apply_stores_landings_in_one_edit_and_undo_restores_them(clie
     assert sorted(rotations.values()) == [0, 1, 2]
     new_rows = _audit_rows(app, pid)[len(audit_before) :]
     assert new_rows == [("balance-secondary", "transformer T secondary")]  # ONE row for the whole edit
+    history = client.get(f"/projects/{pid}/history")  # the row lists each changed landing as a field
+    assert history.status_code == 200
+    assert f"{next(t for t, r in rotations.items() if r == 2)} feeder_rotation" in history.text
     after = client.get(f"/api/projects/{pid}/results").json()
     for phase in "ABC":
         assert_close(after["transformers"]["T"]["secondary_line_amps"][phase], 50.0, rel=1e-6)
