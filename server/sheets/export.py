@@ -2,7 +2,10 @@
 
 * XLSX: a "Summary" sheet (transformers and panels, values from the engine's
   :class:`~server.calc.results.ProjectResult`, with the caution) and one sheet per panel
-  holding its circuit table.  Header row bold and frozen, units in the headers.
+  holding its circuit table.  Header row bold and frozen, units in the headers.  The panel
+  sheets are one circuit per row, or with ``layout="two-column"`` the way a panelboard reads:
+  odd slots in the left half of each row, even slots in the right half (mirrored), the row's
+  phase between them, and "—" on the further rows of a multi-pole breaker.
 * CSV: one table of every panel's circuits with a Panel column (the importer reads it back
   with that column mapped to ``panel``), and the summary as a second CSV.
 * The project file: :func:`server.calc.projectfile.dumps_project` (version-1 JSON).
@@ -20,10 +23,12 @@ import re
 from collections.abc import Sequence
 from typing import Any
 
+from server.calc.balance import rotation_landing
 from server.calc.model import Circuit, Panel, Project
 from server.calc.results import ProjectResult
-from server.calc.systems import SYSTEMS, breaker_phases
+from server.calc.systems import SYSTEMS, breaker_phases, breaker_slots, slot_phase
 
+from .mapping import Layout
 from .reader import escape_text
 
 CAUTION = (
@@ -49,6 +54,28 @@ CIRCUIT_HEADERS: tuple[str, ...] = (
     "Notes",
 )
 
+#: One half of a two-column panel sheet, from the outer edge inward; the right half is mirrored
+#: and the row's phase sits between them.  Every circuit field is there, so the sheet imports back.
+HALF_HEADERS: tuple[str, ...] = (
+    "Ckt",
+    "Description",
+    "Category",
+    "Load (VA)",
+    "PF",
+    "Status",
+    "Continuous",
+    "Feeds",
+    "Locked",
+    "3rd harmonic (%)",
+    "Notes",
+    "Poles",
+    "Trip (A)",
+)
+TWO_COLUMN_HEADERS: tuple[str, ...] = (*HALF_HEADERS, "Phase", *reversed(HALF_HEADERS))
+
+#: What the further rows of a multi-pole breaker show in its description cell.
+CONTINUATION_MARK = "\u2014"
+
 PANEL_SUMMARY_HEADERS: tuple[str, ...] = (
     "Panel",
     "System",
@@ -63,6 +90,7 @@ PANEL_SUMMARY_HEADERS: tuple[str, ...] = (
     "Spaces used",
     "Spaces",
     "Feeder",
+    "Feeder landing",  # empty when landed as labelled (feeder_rotation 0)
     "Warnings",
 )
 
@@ -111,6 +139,56 @@ def circuit_row(panel: Panel, c: Circuit) -> list[Any]:
     ]
 
 
+def _half(c: Circuit) -> list[Any]:
+    return [
+        c.slot,
+        c.description,
+        c.category.value if c.category else "",
+        c.va if c.va is not None else "",
+        c.pf if c.pf is not None else "",
+        c.status.value,
+        _yes_no(c.continuous),
+        c.feeds or "",
+        _yes_no(c.locked),
+        c.harmonic3_pct,
+        c.notes,
+        c.poles,
+        c.breaker_amps if c.breaker_amps is not None else "",
+    ]
+
+
+def two_column_rows(panel: Panel) -> list[list[Any]]:
+    """The panel as it reads: row n holds slot 2n-1 on the left and 2n on the right, phase between.
+
+    A multi-pole breaker fills its first slot's half; its further slots show the slot number and
+    a "—" (the importer reads them back as the same breaker).  An unused slot shows its number only.
+    """
+    spec = SYSTEMS.get(panel.system)
+    owner: dict[int, Circuit] = {}
+    last = panel.spaces
+    for c in panel.circuits:
+        span = breaker_slots(c.slot, c.poles) if not c.is_space else (c.slot,)
+        for s in span:
+            owner[s] = c
+        last = max(last, span[-1])
+    width = len(HALF_HEADERS)
+    rows = []
+    for n in range(1, (last + 1) // 2 + 1):
+        halves = []
+        for slot in (2 * n - 1, 2 * n):
+            c = owner.get(slot)
+            if c is None:
+                half: list[Any] = [slot] + [""] * (width - 1)
+            elif c.slot == slot:
+                half = _half(c)
+            else:
+                half = [slot, CONTINUATION_MARK] + [""] * (width - 2)
+            halves.append(half)
+        phase = slot_phase(spec, 2 * n - 1) if spec is not None else ""
+        rows.append([*halves[0], phase, *reversed(halves[1])])
+    return rows
+
+
 def _r(value: float | None, digits: int = 2) -> float | str:
     return "" if value is None else round(value, digits)
 
@@ -136,6 +214,7 @@ def panel_summary_rows(project: Project, result: ProjectResult) -> list[list[Any
                 pr.spaces_used,
                 pr.spaces_total,
                 pr.feeder.describe() if pr.feeder else "",
+                rotation_landing(p.feeder_rotation) if p.feeder_rotation else "",
                 len(pr.warnings),
             ]
         )
@@ -195,8 +274,11 @@ def _write_table(ws: Any, headers: Sequence[str], rows: Sequence[Sequence[Any]],
         ws.column_dimensions[ws.cell(row=start_row, column=c).column_letter].width = min(max(longest + 2, 6), 60)
 
 
-def project_xlsx(project: Project, result: ProjectResult) -> bytes:
-    """The workbook: Summary sheet, then one circuit sheet per panel (header frozen)."""
+def project_xlsx(project: Project, result: ProjectResult, layout: Layout = Layout.SINGLE) -> bytes:
+    """The workbook: Summary sheet, then one circuit sheet per panel (header frozen).
+
+    ``layout``: one circuit per row, or two (odd left, even right) as the panelboard reads.
+    """
     from openpyxl import Workbook
     from openpyxl.styles import Font
 
@@ -219,8 +301,16 @@ def project_xlsx(project: Project, result: ProjectResult) -> bytes:
     _write_table(ws, PANEL_SUMMARY_HEADERS, p_rows, start_row=row + 1)
     for panel in project.panels:
         sheet = wb.create_sheet(_sheet_title(panel.tag, used))
-        _write_table(sheet, CIRCUIT_HEADERS, [circuit_row(panel, c) for c in panel.circuits])
-        sheet.freeze_panes = "A2"
+        if layout == Layout.TWO_COLUMN:
+            title = f"Panel {panel.tag}   {panel.system}   {panel.bus_amps} A bus   "
+            title += f"{panel.main_amps} A main" if panel.main_amps is not None else "main lugs only"
+            sheet["A1"] = title
+            sheet["A1"].font = Font(bold=True, size=12)
+            _write_table(sheet, TWO_COLUMN_HEADERS, two_column_rows(panel), start_row=3)
+            sheet.freeze_panes = "A4"
+        else:
+            _write_table(sheet, CIRCUIT_HEADERS, [circuit_row(panel, c) for c in panel.circuits])
+            sheet.freeze_panes = "A2"
     buf = io.BytesIO()
     wb.save(buf)
     return buf.getvalue()
