@@ -673,6 +673,9 @@ _MARK_RE = re.compile(
 )
 
 
+_NUMBER_ROLES = LOAD_ROLES | {Role.POLES, Role.BREAKER, Role.PF, Role.HARMONIC}
+
+
 def _mark(value: CellValue) -> tuple[bool, int | None]:
     """Whether a cell is a continuation mark, and the pole count it states ("3P" → 3)."""
     if not isinstance(value, str):
@@ -811,11 +814,12 @@ def _two_column_rows(
             content = {c: values[c] for c in own[side] if c < len(values) and values[c] not in (None, "")}
             content = {c: v for c, v in content.items() if not (isinstance(v, str) and not v.strip())}
             marked = {c for c, v in content.items() if _mark(v)[0]}
-            # marks are read as blank ("—" in a load column is no load); "2P" in a poles or trip column is kept
+            # a mark in a number column reads as blank ("—" for no load); "2P" in a poles or trip column
+            # is kept; a text column keeps it unless the half continues a breaker (read below)
             read_values = values
-            if marked:
-                cleared = [c for c in marked if not (_mark(values[c])[1] and roles[c] in (Role.POLES, Role.BREAKER))]
-                read_values = tuple(None if c in cleared else v for c, v in enumerate(values))
+            numeric = {c for c in marked if roles[c] in _NUMBER_ROLES and not _mark(values[c])[1]}
+            if numeric:
+                read_values = tuple(None if c in numeric else v for c, v in enumerate(values))
             slot_col = slot_cols[side]
             slot_cell = values[slot_col] if slot_col is not None and slot_col < len(values) else None
             slot: int | None = None
@@ -834,7 +838,8 @@ def _two_column_rows(
                 if slot is None or expected is None or slot == expected:
                     ok, mark_poles = _continues(owner, content, roles)
                     if ok:
-                        w = _read_row(read_values, formulas, cols[side])
+                        cleared = tuple(None if c in marked else v for c, v in enumerate(values))
+                        w = _read_row(cleared, formulas, cols[side])
                         cont = _Half(r, side, values, w, slot, False, owner=owner)
                         owner.conts.append(cont)
                         owner.mark_poles = owner.mark_poles or mark_poles

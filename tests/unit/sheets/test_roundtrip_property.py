@@ -1,4 +1,4 @@
-"""Property: any valid panel written as XLSX or CSV imports back to the same circuits."""
+"""Property: any valid panel written as XLSX (one circuit per row or two-column) or CSV imports back to the same circuits."""
 
 from __future__ import annotations
 
@@ -12,6 +12,7 @@ from server.calc.model import Category, Circuit, Status
 from server.calc.projectfile import replace_panel
 from server.sheets import plan_sheets, preview_upload, read_upload
 from server.sheets.export import circuits_csv, project_xlsx
+from server.sheets.mapping import Layout
 
 from .conftest import small_project
 
@@ -53,12 +54,17 @@ def circuits(draw):
     return tuple(out)
 
 
-@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(circuits())
 def test_csv_and_xlsx_round_trip(cs):
     base = small_project()
     project = replace_panel(base, replace(base.panels[0], circuits=cs))
-    for data, name in ((circuits_csv(project), "p.csv"), (project_xlsx(project, compute_project(project)), "p.xlsx")):
+    result = compute_project(project)
+    for data, name in (
+        (circuits_csv(project), "p.csv"),
+        (project_xlsx(project, result), "p.xlsx"),
+        (project_xlsx(project, result, layout=Layout.TWO_COLUMN), "two-column.xlsx"),
+    ):
         book = read_upload(data, name)
         if not cs:
             return  # an empty table has nothing to import (the preview says so)
