@@ -193,7 +193,7 @@ _gc_was_enabled = False
 
 
 @contextmanager
-def _collector_paused() -> Iterator[None]:
+def collector_paused() -> Iterator[None]:
     """Pause automatic garbage collection during a render; collect the young generation after.
 
     With collection paused, everything the render allocates stays in the young generation, so
@@ -212,8 +212,7 @@ def _collector_paused() -> Iterator[None]:
     finally:
         with _gc_lock:
             _gc_renders -= 1
-            last = _gc_renders == 0
-            if last:
+            if _gc_renders == 0:
                 gc.collect(0)
                 if _gc_was_enabled:
                     gc.enable()
@@ -223,7 +222,7 @@ def html_to_pdf(html: str) -> bytes:
     """One sheet's HTML → PDF bytes (runs in a worker process or in-process)."""
     from weasyprint import HTML
 
-    with _collector_paused():
+    with collector_paused():
         return HTML(string=html, base_url=str(PDF_TEMPLATES)).write_pdf(
             stylesheets=[_stylesheet()], font_config=_font_config()
         )

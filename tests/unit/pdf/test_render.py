@@ -35,7 +35,7 @@ def test_the_collector_stays_paused_until_the_last_concurrent_render_ends():
     seen: list[bool] = []
 
     def long_render() -> None:
-        with render._collector_paused():
+        with render.collector_paused():
             inside.set()
             release.wait(10)
 
