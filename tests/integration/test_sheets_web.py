@@ -291,3 +291,112 @@ def test_workbook_with_a_sheet_per_panel_imports_every_panel(client, app, demo_i
     )
     assert r.status_code == 303 and r.headers["location"].endswith("/tree")
     assert app.state.services.snapshot(demo_id).model == before.model
+
+
+def test_two_column_schedule_proposed_corrected_and_confirmed(client, app, demo_id):
+    from tests.unit.sheets.test_two_column import messy_two_column_xlsx
+
+    leaf = _leaf(app, demo_id)
+    r = _upload(client, demo_id, "two.xlsx", messy_two_column_xlsx(), leaf.tag)
+    assert r.status_code == 303
+    work = r.headers["location"]
+    token = work.split("/imports/")[1].split("?")[0]
+    page = client.get(work)
+    assert page.status_code == 200
+    doc = parse(page.text)
+    # the proposal: two circuits per row, the right half from column G, each half with its own columns
+    form = _form_of(page.text)
+    assert form["plan-0-layout"] == "two-column" and form["plan-0-split"] == "G"
+    assert "columns A–F are the left half (odd slots), G–K the right half" in doc.by_id("plan-0-halves").text
+    assert [form[f"plan-0-col-{i}"] for i in range(11)] == [
+        "slot",
+        "description",
+        "kva",
+        "breaker",
+        "poles",
+        "phase",
+        "breaker",
+        "poles",
+        "kva",
+        "description",
+        "slot",
+    ]
+    ahu = _preview_row(page.text, 4)
+    assert ahu.attrs["data-side"] == "right"
+    assert ahu.find("td", data_field="poles").text == "3" and ahu.find("td", data_field="va").text == "9,600"
+    assert "continues the breaker at slot 4" in doc.find("tr", data_row="9", data_side="right").text
+    # the user says the right half's load column is VA: only the right half changes
+    form["plan-0-col-8"] = "va"
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/preview", data=form, headers=htmx("plan-0-col-8"))
+    assert r.status_code == 200 and "<html" not in r.text
+    assert _preview_row(r.text, 4).find("td", data_field="va").text == "10"  # 9.6 read as VA
+    assert _preview_row(r.text, 3).find("td", data_field="va").text == "600"  # left half still kVA
+    # switching to one circuit per row re-guesses a single-column map (the right half is not read)
+    form = _form_of(r.text)
+    form["plan-0-layout"] = "single"
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/preview", data=form, headers=htmx("plan-0-layout"))
+    single = _form_of(r.text)
+    assert single["plan-0-layout"] == "single" and "plan-0-split" not in single
+    assert _preview_row(r.text, 4) is None
+    # and back to two circuits per row: the halves are proposed again; confirm
+    single["plan-0-layout"] = "two-column"
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/preview", data=single, headers=htmx("plan-0-layout"))
+    form = _form_of(r.text)
+    assert form["plan-0-split"] == "G" and form["plan-0-col-8"] == "kva"
+    version = app.state.services.snapshot(demo_id).data_version
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=form, follow_redirects=False)
+    assert r.status_code == 303, r.text[:2000]
+    snap = app.state.services.snapshot(demo_id)
+    assert snap.data_version == version + 1
+    panel = snap.model.panel(leaf.tag)
+    got = {c.slot: (c.poles, c.description, c.va, c.breaker_amps) for c in panel.circuits}
+    assert got == {
+        1: (1, "Lighting - open office", 1200.0, 20),
+        2: (1, "Receptacles - open office", 900.0, 20),
+        3: (1, "Lighting - corridor", 600.0, 20),
+        4: (3, "AHU-2", 9600.0, 40),
+        5: (2, "Water heater", 4500.0, 30),
+        9: (1, "Spare", None, 20),
+        10: (0, "Space", None, None),
+        11: (1, "Copier", 1500.0, 20),
+        12: (1, "Exhaust fan", 500.0, 20),
+    }
+
+
+def test_two_column_slot_claimed_twice_is_refused_naming_row_and_column(client, app, demo_id):
+    leaf = _leaf(app, demo_id)
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["CKT", "DESCRIPTION", "VA", "TRIP", "TRIP", "VA", "DESCRIPTION", "CKT"])
+    ws.append([5, "Lights", 500, 20, 20, 500, "Fan", 6])
+    ws.append([7, "Heater", 1500, 20, 20, 300, "Sign", 7])
+    buf = io.BytesIO()
+    wb.save(buf)
+    r = _upload(client, demo_id, "dup.xlsx", buf.getvalue(), leaf.tag)
+    page = client.get(r.headers["location"])
+    sign = parse(page.text).find("tr", data_row="3", data_side="right")
+    assert "mark-error" in sign.find("td", data_field="slot").attrs["class"]
+    assert "column H (slot): slot 7 is claimed twice: by the left half of row 3 (column A)" in sign.text
+    assert "disabled" in parse(page.text).by_id("confirm-import").attrs
+    before = app.state.services.snapshot(demo_id)
+    token = r.headers["location"].split("/imports/")[1].split("?")[0]
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=_form_of(page.text))
+    assert r.status_code == 422 and "Not written" in r.text
+    assert app.state.services.snapshot(demo_id).model == before.model
+
+
+def test_two_column_export_downloads_and_imports_back(client, app, demo_id):
+    page = client.get(f"/projects/{demo_id}/sheets")
+    link = parse(page.text).by_id("export-xlsx-two-column")
+    r = client.get(link.attrs["href"])
+    assert r.status_code == 200 and 'schedules-two-column.xlsx"' in r.headers["content-disposition"]
+    assert client.get(f"/projects/{demo_id}/sheets/export.xlsx?layout=diagonal").status_code == 422
+    before = app.state.services.snapshot(demo_id)
+    up = _upload(client, demo_id, "two.xlsx", r.content, "auto")
+    page = client.get(up.headers["location"])
+    form = _form_of(page.text)
+    assert {v for k, v in form.items() if k.endswith("-layout")} == {"two-column"}
+    token = up.headers["location"].split("/imports/")[1].split("?")[0]
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=form, follow_redirects=False)
+    assert r.status_code == 303
+    assert app.state.services.snapshot(demo_id).model == before.model

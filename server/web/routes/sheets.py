@@ -32,7 +32,7 @@ from server.sheets import MappingError, SheetFileError, SheetPlan, plan_sheets, 
 from server.sheets.export import circuits_csv, project_xlsx, summary_csv
 from server.sheets.importer import ImportPreview, PreviewRow
 from server.sheets.limits import check_size, max_upload_bytes
-from server.sheets.mapping import ROLE_LABELS, ColumnMap, Role, column_letter, mapping_at
+from server.sheets.mapping import ROLE_LABELS, ColumnMap, Layout, Role, column_index, column_letter, mapping_at
 from server.sheets.reader import Book, Grid
 from server.sheets.store import replace_panel_circuits
 from server.sheets.uploads import HeldUpload, UploadStore
@@ -110,6 +110,7 @@ class ColumnView:
     header: str
     role: str
     samples: tuple[str, ...]  # the first few data values, as read
+    side: str = ""  # two-column layout: "left" or "right"
 
 
 @dataclass(frozen=True)
@@ -122,6 +123,20 @@ class PlanView:
     header_row: int  # 1-based
     columns: tuple[ColumnView, ...]
     single: bool  # one sheet into one chosen panel: the sheet and panel can be changed
+    layout: str = Layout.SINGLE.value
+    split: str = ""  # two-column layout: letter of the right half's first column
+
+    @property
+    def halves(self) -> str:
+        """The two-column layout in words: which columns are the left and the right half."""
+        if self.layout != Layout.TWO_COLUMN.value or not self.split or not self.columns:
+            return ""
+        cut = column_index(self.split) or 0
+        first, last = self.columns[0].letter, self.columns[-1].letter
+        before = column_letter(max(cut - 1, 0))
+        return (
+            f"columns {first}–{before} are the left half (odd slots), {self.split}–{last} the right half (even slots)"
+        )
 
 
 @dataclass(frozen=True)
@@ -132,6 +147,8 @@ class RowView:
     sheet_row: int
     panel: str
     ignored: str
+    side: str = ""  # two-column layout: the half of the sheet row
+    slot_inferred: bool = False
     slot: str = ""
     poles: str = ""
     phases: str = ""
@@ -162,6 +179,7 @@ class ImportContext:
     plans: tuple[PlanView, ...]
     rows: tuple[RowView, ...]
     problems: tuple[str, ...]  # problems of the import as a whole
+    notes: tuple[str, ...]  # what the import assumed (slots from the row order ...)
     error_count: int
     warning_count: int
     can_commit: bool
@@ -170,6 +188,10 @@ class ImportContext:
     sheet_names: tuple[str, ...]
     panels: tuple[str, ...]
     roles: tuple[tuple[str, str], ...] = tuple((r.value, ROLE_LABELS[r]) for r in Role)
+    layouts: tuple[tuple[str, str], ...] = (
+        (Layout.SINGLE.value, "One circuit per row"),
+        (Layout.TWO_COLUMN.value, "Two circuits per row (odd left, even right)"),
+    )
     message: str = ""
     urls: SheetUrls = SHEET_URLS
 
@@ -233,8 +255,18 @@ def _plan_view(k: int, plan: SheetPlan, grid: Grid, single: bool) -> PlanView:
         role = cmap.roles[i] if i < len(cmap.roles) else Role.IGNORE
         header = cmap.headers[i] if i < len(cmap.headers) else ""
         samples = tuple(_text(r[i]) if i < len(r) else "" for r in samples_rows)
-        cols.append(ColumnView(i, column_letter(i), header, role.value, samples))
-    return PlanView(k, plan.sheet, plan.panel or "", cmap.header_row + 1, tuple(cols), single)
+        side = cmap.side_of(i)
+        cols.append(ColumnView(i, column_letter(i), header, role.value, samples, side.value if side else ""))
+    return PlanView(
+        k,
+        plan.sheet,
+        plan.panel or "",
+        cmap.header_row + 1,
+        tuple(cols),
+        single,
+        layout=cmap.layout.value,
+        split=column_letter(cmap.split) if cmap.split is not None else "",
+    )
 
 
 _FIELD_LABEL = {"breaker_amps": "trip", "va": "load", "harmonic3_pct": "3rd harmonic"}
@@ -270,12 +302,16 @@ def _row_view(row: PreviewRow) -> RowView:
             where += f" ({_FIELD_LABEL.get(p.field, p.field)})"
         problems.append((p.severity.value, where, p.message))
     if c is None:
-        return RowView(row.sheet, row.sheet_row, row.panel or "", row.ignored, marks=marks, problems=tuple(problems))
+        return RowView(
+            row.sheet, row.sheet_row, row.panel or "", row.ignored, row.side, marks=marks, problems=tuple(problems)
+        )
     return RowView(
         sheet=row.sheet,
         sheet_row=row.sheet_row,
         panel=row.panel or "",
         ignored=row.ignored,
+        side=row.side,
+        slot_inferred=row.slot_inferred,
         slot=str(c.slot),
         poles=str(c.poles),
         phases="".join(row.phases),
@@ -309,6 +345,7 @@ def _import_context(
         plans=tuple(_plan_view(k, p, grids[p.sheet], single) for k, p in enumerate(plans)),
         rows=tuple(_row_view(r) for r in preview.rows),
         problems=preview.problems,
+        notes=preview.notes,
         error_count=preview.error_count,
         warning_count=preview.warning_count,
         can_commit=preview.can_commit,
@@ -346,10 +383,11 @@ def _initial_plans(book: Book, snap: Snapshot, target: str, sheet: str | None) -
 
 
 def plans_from_form(book: Book, form: Mapping[str, str], trigger: str | None) -> list[SheetPlan]:
-    """The mapping as the user left it: per plan, sheet, panel, header row and each column's role.
+    """The mapping as the user left it: per plan, sheet, panel, header row, layout and each column's role.
 
-    A changed sheet or header row re-guesses that plan; a column given a role another column
-    holds takes it over when it is the control just changed (``trigger``).
+    A changed sheet, header row, layout or right-half column re-guesses that plan; a column given a
+    role another column of its half holds takes it over when it is the control just changed
+    (``trigger``).
     """
     try:
         count = int(form.get("plan-count", "0"))
@@ -365,10 +403,26 @@ def plans_from_form(book: Book, form: Mapping[str, str], trigger: str | None) ->
         except ValueError:
             header_row = 0
         header_row = min(header_row, max(len(grid.rows) - 1, 0))
-        guessed = mapping_at(grid, header_row) if grid.rows else _blank_map(grid)
-        if form.get(prefix + "sheet") != form.get(prefix + "sheet-was") or str(header_row + 1) != form.get(
-            prefix + "header_row-was"
-        ):
+        try:
+            layout = Layout(form.get(prefix + "layout", Layout.SINGLE.value))
+        except ValueError:
+            layout = Layout.SINGLE
+        split = column_index(form.get(prefix + "split", "")) if layout == Layout.TWO_COLUMN else None
+        if split is not None and not 1 <= split < max(grid.width, 2):
+            split = None
+        changed = (
+            form.get(prefix + "sheet") != form.get(prefix + "sheet-was")
+            or str(header_row + 1) != form.get(prefix + "header_row-was")
+            or layout.value != form.get(prefix + "layout-was", Layout.SINGLE.value)
+            or (layout == Layout.TWO_COLUMN and form.get(prefix + "split", "") != form.get(prefix + "split-was", ""))
+        )
+        if not grid.rows:
+            guessed = _blank_map(grid)
+        elif changed and form.get(prefix + "sheet") != form.get(prefix + "sheet-was"):
+            guessed = mapping_at(grid, header_row)  # another sheet: its layout is detected afresh
+        else:
+            guessed = mapping_at(grid, header_row, layout, split)
+        if changed:
             plans.append(SheetPlan(grid.name, guessed, panel))
             continue
         roles: list[Role] = []
@@ -377,22 +431,12 @@ def plans_from_form(book: Book, form: Mapping[str, str], trigger: str | None) ->
                 roles.append(Role(form.get(f"{prefix}col-{i}", "ignore")))
             except ValueError:
                 roles.append(Role.IGNORE)
-        cmap = ColumnMap(header_row=header_row, roles=tuple(roles), headers=guessed.headers)
+        cmap = ColumnMap(header_row=header_row, roles=tuple(roles), headers=guessed.headers, split=guessed.split)
         m = re.fullmatch(rf"{re.escape(prefix)}col-(\d+)", trigger or "")
         if m and int(m.group(1)) < len(roles):
             cmap = cmap.with_role(int(m.group(1)), roles[int(m.group(1))])
-        # any duplicate left (no trigger): the first column keeps the role
-        seen: set[Role] = set()
-        fixed = []
-        for r in cmap.roles:
-            load = r in (Role.LOAD_VA, Role.LOAD_KVA, Role.LOAD_AMPS)
-            key = Role.LOAD_VA if load else r
-            if r != Role.IGNORE and key in seen:
-                fixed.append(Role.IGNORE)
-            else:
-                seen.add(key)
-                fixed.append(r)
-        plans.append(SheetPlan(grid.name, ColumnMap(header_row, tuple(fixed), cmap.headers), panel))
+        # any duplicate left (no trigger): the first column of the half keeps the role
+        plans.append(SheetPlan(grid.name, cmap.deduplicated(), panel))
     return plans
 
 
@@ -565,9 +609,19 @@ XLSX_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
 
 
 @router.get(BASE + "/export.xlsx", name="sheets_export_xlsx")
-def export_xlsx(pid: int, svc: ServicesDep) -> Response:
+def export_xlsx(pid: int, svc: ServicesDep, layout: str = Layout.SINGLE.value) -> Response:
     snap = svc.snapshot(pid)
-    return _download(project_xlsx(snap.model, snap.result), f"{_stem(snap)}-schedules.xlsx", XLSX_TYPE)
+    try:
+        chosen = Layout(layout)
+    except ValueError:
+        choices = ", ".join(v.value for v in Layout)
+        return Response(
+            f"layout {layout!r} is not known; use one of {choices}", status_code=422, media_type="text/plain"
+        )
+    suffix = "-two-column" if chosen == Layout.TWO_COLUMN else ""
+    return _download(
+        project_xlsx(snap.model, snap.result, layout=chosen), f"{_stem(snap)}-schedules{suffix}.xlsx", XLSX_TYPE
+    )
 
 
 @router.get(BASE + "/circuits.csv", name="sheets_export_circuits")
