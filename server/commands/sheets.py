@@ -1,15 +1,18 @@
 """``panelwright import-sheet`` and ``panelwright export-sheet``: spreadsheets from the command line.
 
 ``import-sheet`` reads an XLSX or CSV circuit table into one panel (or, without ``--panel``,
-every sheet named after a panel and any table with a Panel column), prints the preview with
-each problem naming the file, sheet, row, panel, slot and field, and writes only with
-``--yes`` and no errors.  ``export-sheet`` writes the project as XLSX (summary + one sheet per
-panel), CSV (circuits, plus ``<name>-summary.csv``) or the version-1 project file (``.json``).
+every sheet named after a panel and any table with a Panel column), one circuit per row or two
+(odd slots in the left half, even in the right), prints the preview with each problem naming
+the file, sheet, row, panel, slot, column and field, and writes only with ``--yes`` and no
+errors.  ``export-sheet`` writes the project as XLSX (summary + one sheet per panel, one
+circuit per row or ``--layout two-column``), CSV (circuits, plus ``<name>-summary.csv``) or the
+version-1 project file (``.json``).
 Both use the database named by ``PANELWRIGHT_DATABASE_URL``.
 """
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import click
@@ -55,8 +58,9 @@ def _preview_table(preview) -> list[str]:  # noqa: ANN001
     header = f"{'row':>5}  {'panel':<8} {'slot':>4} {'P':>1} {'phase':<5} {'VA':>10} {'trip':>5}  {'category':<11} description"
     lines.append(header)
     for r in preview.rows:
+        half = f" {r.side}" if r.side else ""
         if r.ignored:
-            lines.append(f"{r.sheet_row:>5}  (not imported: {r.ignored})")
+            lines.append(f"{r.sheet_row:>5}  (not imported{half}: {r.ignored})")
             continue
         c = r.circuit
         mark = " !" if r.has_error else (" ?" if r.problems else "")
@@ -66,9 +70,10 @@ def _preview_table(preview) -> list[str]:  # noqa: ANN001
         va = "" if c.va is None else f"{c.va:,.0f}"
         trip = "" if c.breaker_amps is None else str(c.breaker_amps)
         cat = (c.category or Category.EQUIPMENT).value
+        slot = f"{c.slot}*" if r.slot_inferred else str(c.slot)
         lines.append(
-            f"{r.sheet_row:>5}  {r.panel or '':<8} {c.slot:>4} {c.poles:>1} {''.join(r.phases):<5} {va:>10} "
-            f"{trip:>5}  {cat:<11} {c.description}{mark}"
+            f"{r.sheet_row:>5}  {r.panel or '':<8} {slot:>4} {c.poles:>1} {''.join(r.phases):<5} {va:>10} "
+            f"{trip:>5}  {cat:<11} {c.description}{mark}{' (' + r.side + ' half)' if r.side else ''}"
         )
     return lines
 
@@ -79,7 +84,10 @@ def _preview_table(preview) -> list[str]:  # noqa: ANN001
 @click.option("--panel", "panel_tag", default=None, help="Panel tag to fill; omit to match sheets to panels by name.")
 @click.option("--sheet", "sheet_name", default=None, help="Worksheet to read (default: the first).")
 @click.option(
-    "--mapping", "mapping_json", default=None, help='Column corrections as JSON, e.g. \'{"columns": {"E": "kva"}}\'.'
+    "--mapping",
+    "mapping_json",
+    default=None,
+    help='Column corrections as JSON (see below), e.g. \'{"columns": {"E": "kva"}}\'.',
 )
 @click.option("--yes", "confirm", is_flag=True, help="Write the circuits (without it, only the preview is printed).")
 def import_sheet(
@@ -89,6 +97,23 @@ def import_sheet(
 
     Without --yes nothing is written: the preview is printed.  With --yes the panel's circuits
     are replaced only if no row has an error.
+
+    \b
+    The header row and what each column holds are guessed; --mapping corrects them:
+      {"header_row": 4, "columns": {"C": "kva", "Trip": "breaker"}}
+    header_row is the sheet row of the (last) header row; columns keys are column letters or
+    header text; roles: slot, description, va, kva, amps, poles, breaker, phase, category,
+    notes, status, pf, continuous, feeds, locked, harmonic3_pct, panel, ignore.
+
+    \b
+    Two circuits per row (odd slots in the left half, even in the right) is detected when the
+    header repeats; set or correct it with:
+      {"layout": "two-column", "right_starts": "G",
+       "left": {"kVA": "kva"}, "right": {"kVA": "va"}, "columns": {"F": "phase"}}
+    layout is "single" or "two-column"; right_starts is the letter of the right half's first
+    column; left / right look header text up within that half (headers repeat across halves);
+    columns take letters anywhere.  A phase or panel column serves both halves.  A half
+    without a slot column gets its slots from the row order (marked * in the preview).
     """
     from server.services import Conflict, NotFound
     from server.sheets import MappingError, SheetFileError, plan_sheets, preview_upload, read_upload
@@ -128,12 +153,21 @@ def import_sheet(
         fail(str(exc))
     for plan in plans:
         target = plan.panel or "(Panel column)"
-        click.echo(f"sheet {plan.sheet!r} → {target}; header row {plan.mapping.header_row + 1}; columns:")
-        for i, role in enumerate(plan.mapping.roles):
-            head = plan.mapping.headers[i] if i < len(plan.mapping.headers) else ""
-            click.echo(f"  {column_letter(i):>2} {head[:30]!r:<32} → {role.value}")
+        cmap = plan.mapping
+        layout = (
+            "" if cmap.split is None else f"; two circuits per row, right half from column {column_letter(cmap.split)}"
+        )
+        click.echo(f"sheet {plan.sheet!r} → {target}; header row {cmap.header_row + 1}{layout}; columns:")
+        for i, role in enumerate(cmap.roles):
+            head = cmap.headers[i] if i < len(cmap.headers) else ""
+            side = cmap.side_of(i)
+            half = f" ({side.value})" if side is not None else ""
+            click.echo(f"  {column_letter(i):>2} {head[:30]!r:<32} → {role.value}{half}")
+        click.echo(f"  as --mapping: {json.dumps(cmap.to_json())}")
     for line in _preview_table(preview):
         click.echo(line)
+    for note in preview.notes:
+        click.echo(f"note: {note}")
     lines = preview.problem_lines()
     for line in lines[:MAX_PREVIEW_LINES]:
         click.echo(line, err=True)
@@ -162,19 +196,29 @@ def import_sheet(
     type=click.Path(dir_okay=False, path_type=Path),
     help="FILE.xlsx (summary + a sheet per panel), FILE.csv (circuits and FILE-summary.csv) or FILE.json.",
 )
-def export_sheet(project_key: str, out: Path) -> None:
+@click.option(
+    "--layout",
+    type=click.Choice(["single", "two-column"]),
+    default="single",
+    show_default=True,
+    help="XLSX panel sheets: one circuit per row, or two (odd slots left, even right, phase between).",
+)
+def export_sheet(project_key: str, out: Path, layout: str) -> None:
     """Export PROJECT (number or id) as XLSX, CSV or the version-1 project file."""
     from server.calc.projectfile import dumps_project
     from server.sheets.export import circuits_csv, project_xlsx, summary_csv
+    from server.sheets.mapping import Layout
 
     ext = out.suffix.lower()
     if ext not in (".xlsx", ".csv", ".json"):
         fail(f"{out}: choose an .xlsx, .csv or .json file name")
+    if layout != "single" and ext != ".xlsx":
+        fail(f"{out}: --layout {layout} applies to .xlsx workbooks; CSV and JSON hold one circuit per row")
     services = _services()
     snap = services.snapshot(_find_project(services, project_key))
     try:
         if ext == ".xlsx":
-            out.write_bytes(project_xlsx(snap.model, snap.result))
+            out.write_bytes(project_xlsx(snap.model, snap.result, layout=Layout(layout)))
             written = [out]
         elif ext == ".csv":
             summary = out.with_name(f"{out.stem}-summary.csv")

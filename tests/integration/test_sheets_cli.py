@@ -169,3 +169,106 @@ def test_errors_in_rows_refuse_the_write(store, tmp_path):
     )
     assert "nothing was written" in res.stderr
     assert services.snapshot(pid).model == before.model
+
+
+def test_two_column_export_and_import_round_trip(store, tmp_path):
+    services, pid, number = store
+    out = tmp_path / "two.xlsx"
+    res = _run(export_sheet, [number, "--out", str(out), "--layout", "two-column"])
+    assert res.exit_code == 0, res.output
+    before = services.snapshot(pid)
+    leaf = _leaf(services, pid)
+    wb = openpyxl.load_workbook(out)
+    assert wb[leaf.tag]["A3"].value == "Ckt"
+    res = _run(import_sheet, [str(out), "--project", number, "--panel", leaf.tag, "--sheet", leaf.tag, "--yes"])
+    assert res.exit_code == 0, res.output
+    assert "two circuits per row, right half from column O" in res.output
+    after = services.snapshot(pid)
+    assert after.model == before.model and after.data_version == before.data_version + 1
+    # the layout applies to workbooks only
+    res = CliRunner().invoke(export_sheet, [number, "--out", str(tmp_path / "x.csv"), "--layout", "two-column"])
+    assert res.exit_code == 2 and "--layout two-column applies to .xlsx workbooks" in res.stderr
+
+
+def _two_column_file(tmp_path, rows, name="two.xlsx"):
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Sched"
+    for row in rows:
+        ws.append(row)
+    path = tmp_path / name
+    wb.save(path)
+    return path
+
+
+def test_two_column_mapping_json_corrects_one_half(store, tmp_path):
+    services, pid, number = store
+    leaf = _leaf(services, pid)
+    path = _two_column_file(
+        tmp_path,
+        [
+            ["CKT", "DESCRIPTION", "LOAD", "TRIP", "TRIP", "LOAD", "DESCRIPTION", "CKT"],
+            [1, "Lights", 1.2, 20, 20, 0.8, "Fan", 2],
+            [3, "Heater", 1.5, 20, 40, 3.6, "Pump", 4],
+            [5, "Sign", 0.3, 15, "—", None, "—", 6],
+        ],
+    )
+    # guessed: kVA both halves from the values; the 2-pole pump spans rows 3 and 4 on the right
+    res = _run(import_sheet, [str(path), "--project", number, "--panel", leaf.tag])
+    assert res.exit_code == 0, res.output
+    assert '"layout": "two-column", "right_starts": "E"' in res.output
+    pump = next(line for line in res.output.splitlines() if "Pump" in line)
+    assert "3,600" in pump and "(right half)" in pump
+    # the user says the right half's LOAD is in VA (the left half keeps kVA)
+    mapping = json.dumps({"layout": "two-column", "right_starts": "E", "right": {"LOAD": "va"}})
+    res = _run(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--mapping", mapping, "--yes"])
+    assert res.exit_code == 0, res.output
+    panel = services.snapshot(pid).model.panel(leaf.tag)
+    got = {c.slot: (c.poles, c.description, c.va) for c in panel.circuits}
+    assert got == {
+        1: (1, "Lights", 1200.0),
+        2: (1, "Fan", 0.8),
+        3: (1, "Heater", 1500.0),
+        4: (2, "Pump", 3.6),
+        5: (1, "Sign", 300.0),
+    }
+
+
+@pytest.mark.parametrize(
+    ("mapping", "message"),
+    [
+        ('{"layout": "sideways"}', "layout must be 'single' or 'two-column'"),
+        ('{"right_starts": "Z"}', "right_starts must be a column letter from B to H"),
+        ('{"layout": "single", "right": {"A": "slot"}}', '"right" applies to the two-column layout'),
+    ],
+)
+def test_bad_two_column_mapping_is_a_clear_refusal(store, tmp_path, mapping, message):
+    services, pid, number = store
+    leaf = _leaf(services, pid)
+    path = _two_column_file(tmp_path, [["CKT", "DESCRIPTION", "VA", "TRIP", "TRIP", "VA", "DESCRIPTION", "CKT"]])
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--mapping", mapping])
+    assert res.exit_code == 2 and message in res.stderr and "Traceback" not in res.output + res.stderr
+
+
+def test_two_column_slot_claimed_twice_writes_nothing(store, tmp_path):
+    services, pid, number = store
+    leaf = _leaf(services, pid)
+    path = _two_column_file(
+        tmp_path,
+        [
+            ["CKT", "DESCRIPTION", "VA", "TRIP", "TRIP", "VA", "DESCRIPTION", "CKT"],
+            [5, "Lights", 500, 20, 20, 500, "Fan", 6],
+            [7, "Heater", 1500, 20, 20, 300, "Sign", 7],
+        ],
+        name="dup.xlsx",
+    )
+    before = services.snapshot(pid)
+    res = CliRunner().invoke(import_sheet, [str(path), "--project", number, "--panel", leaf.tag, "--yes"])
+    assert res.exit_code == 2
+    assert (
+        f"error: dup.xlsx, sheet 'Sched', row 3 (right half), panel {leaf.tag}, slot 7, column H, slot: "
+        "slot 7 is claimed twice: by the left half of row 3 (column A) and by the right half of row 3 (column H)"
+    ) in res.stderr
+    assert "nothing was written" in res.stderr and "Traceback" not in res.stderr
+    after = services.snapshot(pid)
+    assert after.model == before.model and after.data_version == before.data_version
