@@ -604,3 +604,12 @@ def test_rotation_turns_the_fundamental_phasor_not_just_the_label() -> None:
     )
     d = compute_project(replace(project, panels=(d_panel, project.panels[1]))).panels["D"]
     assert_close(d.line_amps["B"], 20 * math.cos(math.radians(36.87 / 2)), rel=1e-4)
+
+
+def test_incremental_update_of_a_landing_equals_a_full_compute() -> None:
+    project = _rotation_project((Circuit(slot=1, poles=1, va=1_000, pf=0.8), Circuit(slot=4, poles=2, va=3_000)), 0)
+    calc = Calculator(project)
+    for rotation in (1, 2, 0):
+        panel = replace(project.panel("P"), feeder_rotation=rotation)
+        project = replace_panel(project, panel)
+        assert calc.update_panel(panel) == compute_project(project)
