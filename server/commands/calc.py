@@ -13,6 +13,7 @@ import json
 import click
 
 from server import formatting as fmt
+from server.calc.balance import rotation_landing
 from server.calc.engine import compute_project
 from server.calc.errors import CalcError, ProjectFileError
 from server.calc.model import Project
@@ -75,7 +76,7 @@ def _source(s: SourceResult) -> list[str]:
     return lines
 
 
-def _panel(p: PanelResult) -> list[str]:
+def _panel(p: PanelResult, feeder_rotation: int = 0) -> list[str]:
     lines = [
         f"PANEL {p.tag}  {p.system}  fed from {p.fed_from or '—'}",
         f"  connected     {_phases(p.connected_va, 'kVA', fmt.va_as_kva)}; total {fmt.va_as_kva(p.connected_va_total)} kVA;"
@@ -92,6 +93,8 @@ def _panel(p: PanelResult) -> list[str]:
             f"  feeder        {f.describe()}; {fmt.feet(f.length_ft)}; voltage drop {fmt.pct(f.voltage_drop_pct, 2)}"
             f" (from source {fmt.pct(f.cumulative_voltage_drop_pct, 2)})"
         )
+    if feeder_rotation:
+        lines.append(f"  landing       {rotation_landing(feeder_rotation)} (panel phase → terminal upstream)")
     lines.append(f"  fault         {fmt.ka(p.fault_ka) if p.fault_ka is not None else 'infinite bus'}")
     lines.append(f"  spaces        {p.spaces_used} of {p.spaces_total} used")
     if p.warnings:
@@ -142,7 +145,8 @@ def report(project: Project, result: ProjectResult) -> str:
         lines.extend(_transformer(t))
         lines.append("")
     for p in result.panels.values():
-        lines.extend(_panel(p))
+        panel = project.panel(p.tag)
+        lines.extend(_panel(p, panel.feeder_rotation if panel is not None else 0))
         lines.append("")
     counts = {sev: sum(1 for w in result.warnings if w.severity.value == sev) for sev in ("error", "warning", "note")}
     lines.append(

@@ -116,3 +116,17 @@ def test_demo_project_reports_every_element() -> None:
     for element in (*project.sources, *project.transformers, *project.panels):
         assert f" {element.tag} " in r.output, element.tag
     assert r.output.count(CAUTION) == 2  # at the head and at the foot of the report
+
+
+def test_report_shows_a_feeder_landing_other_than_as_labelled(tmp_path: Path) -> None:
+    data = json.loads(SMALL.read_text())
+    for p in data["panels"]:
+        if p["tag"] == "LP-1":  # three-phase, fed from a 208Y/120 transformer secondary
+            p["feeder_rotation"] = 1
+    path = tmp_path / "rotated.json"
+    path.write_text(json.dumps(data))
+    r = _run(str(path))
+    assert r.exit_code == 0, r.output
+    block = r.output.split("PANEL LP-1", 1)[1].split("PANEL ", 1)[0]
+    assert "landing       A→B, B→C, C→A" in block
+    assert "landing" not in r.output.split("PANEL LP-2", 1)[1].split("PANEL ", 1)[0]
