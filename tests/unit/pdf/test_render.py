@@ -58,3 +58,18 @@ def test_font_configuration_is_kept_per_thread():
     t.start()
     t.join(10)
     assert other and other[0] is not mine
+
+
+def test_merge_keeps_sheet_order_and_outlines_each_sheet():
+    import io
+
+    from pypdf import PdfReader
+
+    sheets = [render.html_to_pdf(f"<!doctype html><html><body><p>Sheet {n}</p></body></html>") for n in (1, 2, 3)]
+    merged = PdfReader(io.BytesIO(render.merge_pdfs(sheets, ["PW-001 A", "PW-002 B", "PW-003 C"])))
+    assert [page.extract_text().strip() for page in merged.pages] == ["Sheet 1", "Sheet 2", "Sheet 3"]
+    assert [(o.title, merged.get_destination_page_number(o)) for o in merged.outline] == [
+        ("PW-001 A", 0),
+        ("PW-002 B", 1),
+        ("PW-003 C", 2),
+    ]
