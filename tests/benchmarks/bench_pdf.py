@@ -4,7 +4,7 @@ Run ``.venv/bin/python -m tests.benchmarks.bench_pdf [--panels N] [--workers W] 
 Prints, against floors measured in the same run (never absolute times as pass/fail):
 
 1. Per sheet, single process: our whole path for one panel schedule (Jinja HTML, content hash,
-   WeasyPrint with the shared stylesheet, and its share of the pypdf merge) ÷ the floor:
+   WeasyPrint with the shared stylesheet, and its share of the merge) ÷ the floor:
    WeasyPrint rendering a minimal page of the same paper size holding one plain, unstyled
    table with the same cell texts (target ≤ 1.3×).  Interleaved, best of 3 per sheet, over a
    deterministic sample of panel sheets, in CPU time of this process (``time.process_time``:
