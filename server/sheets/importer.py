@@ -678,8 +678,8 @@ _NUMBER_ROLES = LOAD_ROLES | {Role.POLES, Role.BREAKER, Role.PF, Role.HARMONIC}
 
 def _mark(value: CellValue) -> tuple[bool, int | None]:
     """Whether a cell is a continuation mark, and the pole count it states ("3P" → 3)."""
-    if not isinstance(value, str):
-        return False, None
+    if not isinstance(value, str) or len(value) > 12:
+        return False, None  # marks are short; most text cells are descriptions
     m = _MARK_RE.match(value.strip())
     if not m:
         return False, None
@@ -777,6 +777,8 @@ def _two_column_rows(
     panel_col = cmap.column(Role.PANEL)
     width = max(grid.width, len(cmap.roles))
     header_key = tuple(normalise(h) for h in cmap.headers)
+    # a repeated header row is looked for only where its first heading cell repeats
+    key_col = next((i for i, h in enumerate(header_key) if h), 0)
     formulas_by_row: dict[int, set[int]] = {}
     for r, c in grid.formulas:
         formulas_by_row.setdefault(r, set()).add(c)
@@ -798,12 +800,18 @@ def _two_column_rows(
         if blank and (not inferring or not started):
             continue  # layout; with slots from the row order, a blank row inside the table is a table row
         if not blank:
-            texts = _row_texts(values, width)
-            if any(texts) and all(normalise(t) == h for t, h in zip(texts, header_key, strict=False)):
+            first = values[key_col] if key_col < len(values) else None
+            if (
+                isinstance(first, str)
+                and normalise(first) == header_key[key_col]
+                and all(normalise(t) == h for t, h in zip(_row_texts(values, width), header_key, strict=False))
+            ):
                 events.append(_ignored_row(plan, r, values, width, "repeated header row"))
                 continue
             slot_cells = [values[c] for c in slot_cols.values() if c is not None and c < len(values)]
-            if all(v is None or v == "" for v in slot_cells) and _TOTAL_RE.search(normalise(" ".join(texts))):
+            if all(v is None or v == "" for v in slot_cells) and _TOTAL_RE.search(
+                normalise(" ".join(_row_texts(values, width)))
+            ):
                 ended = "below the totals row"
                 events.append(_ignored_row(plan, r, values, width, "totals row (not a circuit)"))
                 continue
@@ -811,8 +819,11 @@ def _two_column_rows(
         position += 1
         formulas = formulas_by_row.get(r, set())
         for side in sides:
-            content = {c: values[c] for c in own[side] if c < len(values) and values[c] not in (None, "")}
-            content = {c: v for c, v in content.items() if not (isinstance(v, str) and not v.strip())}
+            content = {
+                c: v
+                for c in own[side]
+                if c < len(values) and (v := values[c]) is not None and not (isinstance(v, str) and not v.strip())
+            }
             marked = {c for c, v in content.items() if _mark(v)[0]}
             # a mark in a number column reads as blank ("—" for no load); "2P" in a poles or trip column
             # is kept; a text column keeps it unless the half continues a breaker (read below)

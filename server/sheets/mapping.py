@@ -280,8 +280,11 @@ def _header_texts(grid: Grid, r: int, with_group: bool) -> list[str]:
 
 
 def _assign(texts: Sequence[str]) -> tuple[list[Role], int]:
-    guessed = [guess_role(t) for t in texts]
-    roles: list[Role] = [Role.IGNORE] * len(texts)
+    return _assign_guessed([guess_role(t) for t in texts])
+
+
+def _assign_guessed(guessed: Sequence[Role | str | None]) -> tuple[list[Role], int]:
+    roles: list[Role] = [Role.IGNORE] * len(guessed)
     taken: set[Role] = set()
     for i, g in enumerate(guessed):
         if isinstance(g, Role) and g not in taken and not (g in LOAD_ROLES and taken & LOAD_ROLES):
@@ -327,6 +330,9 @@ def to_number(value: CellValue) -> float | None:
         return None
 
 
+_NUMBER_TEXT = re.compile(r"[\d\s.,+\-]*")
+
+
 def guess_mapping(grid: Grid) -> ColumnMap:
     """Find the header row (or two-row header band) and guess each column's role.
 
@@ -340,6 +346,10 @@ def guess_mapping(grid: Grid) -> ColumnMap:
             continue
         for with_group in (False, True):
             texts = _header_texts(grid, r, with_group)
+            # each text gives at most one role and numbers give none: a row with no more words than
+            # the best score so far cannot beat it (the data rows below the header, mostly)
+            if best is not None and sum(1 for t in texts if t and not _NUMBER_TEXT.fullmatch(t)) <= best[1]:
+                continue
             roles, score = _assign(texts)
             if best is None or score > best[1]:
                 best = (r, score, roles, texts)
@@ -393,10 +403,13 @@ def detect_split(texts: Sequence[str]) -> int | None:
     the most roles wins; then the most even one.
     """
     width = len(texts)
+    guessed = [guess_role(t) for t in texts]
+    if sum(1 for g in guessed if g is not None) < 4:
+        return None  # two blocks need at least two roles each
     best: tuple[int, float, int] | None = None
     for p in range(2, width - 1):
-        left, left_score = _assign(texts[:p])
-        right, right_score = _assign(texts[p:])
+        left, left_score = _assign_guessed(guessed[:p])
+        right, right_score = _assign_guessed(guessed[p:])
         lk, rk = _kinds(left), _kinds(right)
         if not (lk & _NAMING and rk & _NAMING and lk & _LOADING and rk & _LOADING):
             continue
