@@ -321,6 +321,8 @@ def test_two_column_schedule_proposed_corrected_and_confirmed(client, app, demo_
         "description",
         "slot",
     ]
+    sides = [th.attrs.get("data-side") for th in doc.find("table", class_="mapping").find_all("th")]
+    assert sides == ["left"] * 5 + ["both halves"] + ["right"] * 5
     ahu = _preview_row(page.text, 4)
     assert ahu.attrs["data-side"] == "right"
     assert ahu.find("td", data_field="poles").text == "3" and ahu.find("td", data_field="va").text == "9,600"

@@ -32,7 +32,17 @@ from server.sheets import MappingError, SheetFileError, SheetPlan, plan_sheets, 
 from server.sheets.export import circuits_csv, project_xlsx, summary_csv
 from server.sheets.importer import ImportPreview, PreviewRow
 from server.sheets.limits import check_size, max_upload_bytes
-from server.sheets.mapping import ROLE_LABELS, ColumnMap, Layout, Role, column_index, column_letter, mapping_at
+from server.sheets.mapping import (
+    ROLE_LABELS,
+    SHARED_ROLES,
+    ColumnMap,
+    Layout,
+    Role,
+    Side,
+    column_index,
+    column_letter,
+    mapping_at,
+)
 from server.sheets.reader import Book, Grid
 from server.sheets.store import replace_panel_circuits
 from server.sheets.uploads import HeldUpload, UploadStore
@@ -256,7 +266,14 @@ def _plan_view(k: int, plan: SheetPlan, grid: Grid, single: bool) -> PlanView:
         header = cmap.headers[i] if i < len(cmap.headers) else ""
         samples = tuple(_text(r[i]) if i < len(r) else "" for r in samples_rows)
         side = cmap.side_of(i)
-        cols.append(ColumnView(i, column_letter(i), header, role.value, samples, side.value if side else ""))
+        label = side.value if side else ""
+        if (
+            side is not None
+            and role in SHARED_ROLES
+            and cmap.side_map(Side.LEFT).roles[i] == cmap.side_map(Side.RIGHT).roles[i]
+        ):
+            label = "both halves"  # a phase or panel column the other half reads too
+        cols.append(ColumnView(i, column_letter(i), header, role.value, samples, label))
     return PlanView(
         k,
         plan.sheet,
