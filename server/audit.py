@@ -49,6 +49,7 @@ _KINDS: dict[type, str] = {
     db.Revision: "revision",
     db.User: "user",
     db.Comment: "comment",
+    db.FirmSettings: "firm settings",
 }
 _IGNORED = frozenset(
     {"id", "project_id", "panel_id", "position", "version", "data_version", "created_at", "updated_at"}
@@ -151,6 +152,8 @@ def _where(obj: Any, places: _Places) -> tuple[int | None, str | None, str]:
         return d.get("id"), None, f"project {d.get('number') or d.get('name')}"
     if isinstance(obj, db.User):
         return None, None, f"user {d.get('name')}"
+    if isinstance(obj, db.FirmSettings):
+        return None, None, "firm settings"
     if isinstance(obj, db.Comment):
         slot = d.get("slot")
         at = f"{d.get('panel_tag')}" + (f" slot {slot}" if slot is not None else "")
@@ -261,12 +264,19 @@ def parse_day(text: str | None, name: str) -> date | None:
 
 
 def events(
-    sessions: sessionmaker[Session], *, project_id: int | None, filt: AuditFilter = AuditFilter(), limit: int = 500
+    sessions: sessionmaker[Session],
+    *,
+    project_id: int | None,
+    filt: AuditFilter = AuditFilter(),
+    limit: int = 500,
+    target: str | None = None,
 ) -> list[AuditLine]:
-    """Newest first."""
+    """Newest first; ``target`` keeps only the changes of one thing (e.g. "firm settings")."""
     stmt = select(db.AuditEvent).order_by(db.AuditEvent.at.desc(), db.AuditEvent.id.desc())
     if project_id is not None:
         stmt = stmt.where(db.AuditEvent.project_id == project_id)
+    if target is not None:
+        stmt = stmt.where(db.AuditEvent.target == target)
     if filt.user:
         stmt = stmt.where(db.AuditEvent.user_name == filt.user)
     if filt.panel:

@@ -511,7 +511,12 @@ class Services:
             return row.id
 
     def create_blank_project(self, form: Mapping[str, Any]) -> int:
-        info = {k: v for k, v in blank_to_none(form).items() if k in _INFO_FIELDS}
+        """A project from the new-project form: the firm's defaults (server.firm), then what the form gives."""
+        from server import firm  # firm checks its values with this module's EditRejected
+
+        with self.sessions() as s:
+            info = firm.current(s)
+        info.update({k: v for k, v in blank_to_none(form).items() if k in _INFO_FIELDS and v is not None})
         return self.create_project({"format": FORMAT_NAME, "version": FORMAT_VERSION, "project": info})
 
     def import_file(self, data: Mapping[str, Any], *, replace_existing: bool = False) -> ImportOutcome:

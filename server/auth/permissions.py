@@ -68,7 +68,7 @@ _VERB = {
     Permission.COMMENT: "comment",
     Permission.EDIT: "change projects",
     Permission.ISSUE: "issue revisions",
-    Permission.ADMIN: "manage users",
+    Permission.ADMIN: "manage users or firm settings",
     Permission.PUBLIC: "do this",
 }
 

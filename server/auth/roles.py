@@ -22,7 +22,7 @@ class Permission(StrEnum):
     COMMENT = "comment"  # write and resolve comments on panels (review notes, not project data)
     EDIT = "edit"  # change projects, panels, circuits; import
     ISSUE = "issue"  # issue a revision
-    ADMIN = "admin"  # manage users
+    ADMIN = "admin"  # manage users and firm settings
 
 
 GRANTS: dict[Role, frozenset[Permission]] = {

@@ -317,3 +317,26 @@ class MeteredLoad(Base):
     uploaded_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow)
     uploaded_by: Mapped[str] = mapped_column(String(60), default="")
     active: Mapped[bool] = mapped_column(Boolean, default=True)
+
+
+class FirmSettings(Base):
+    """The firm's defaults for new projects and their title block: one row (``id`` 1), absent until first saved.
+
+    Each column is the ProjectInfo field of the same name (:mod:`server.calc.model`); the values
+    are validated by the project file's own rules (:mod:`server.firm`) before they are written.
+    A project keeps what it was created with: changing these never rewrites an existing project.
+    """
+
+    __tablename__ = "firm_settings"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    firm: Mapped[str] = mapped_column(String(200), default="")
+    code: Mapped[str] = mapped_column(String(20), default="NEC-2023")
+    occupancy: Mapped[str] = mapped_column(String(20), default="office")
+    include_future: Mapped[bool] = mapped_column(Boolean, default=False)
+    vd_feeder_pct: Mapped[float] = mapped_column(Float, default=3.0)
+    vd_total_pct: Mapped[float] = mapped_column(Float, default=5.0)
+    imbalance_limit_pct: Mapped[float] = mapped_column(Float, default=10.0)
+    growth_margin_pct: Mapped[float] = mapped_column(Float, default=25.0)
+    paper: Mapped[str] = mapped_column(String(30), default="tabloid-landscape")
+    updated_at: Mapped[datetime] = mapped_column(DateTime(timezone=True), default=utcnow, onupdate=utcnow)

@@ -23,7 +23,7 @@ DEFAULT_RULE = [Depends(BY_METHOD)]
 
 
 def install_team(app: FastAPI, settings: Settings) -> None:
-    from server.web.routes import auth, history, presence, revisions, users
+    from server.web.routes import auth, firm, history, presence, revisions, users
 
     services = app.state.services
     audit.install(services.sessions)
@@ -39,5 +39,5 @@ def install_team(app: FastAPI, settings: Settings) -> None:
     app.state.presence = Presence()
     app.state.templates.env.globals["content_version"] = content_version  # hidden "version" of whole-element forms
     app.add_middleware(AuthMiddleware, config=config)
-    for module in (auth, users, history, revisions, presence):
+    for module in (auth, users, firm, history, revisions, presence):
         app.include_router(module.router)

@@ -7,6 +7,7 @@ import json
 from fastapi import APIRouter, Request
 from fastapi.responses import RedirectResponse, Response
 
+from server import firm
 from server.services import EditRejected, StaleEdit
 from server.versions import content_version
 from server.web.conflicts import form_conflict_message
@@ -30,12 +31,18 @@ def _list(
         Page("Projects"),
         svc.list_projects(include_archived=show_archived),
         show_archived,
-        values or {"code": "NEC-2023", "occupancy": "office"},
+        values or _new_project_values(svc),
         errors or {},
     )
     return templates.TemplateResponse(
         request, "projects/list.html", {"ctx": ctx, "page": ctx.page}, status_code=status_code
     )
+
+
+def _new_project_values(svc: ServicesDep) -> dict[str, str]:
+    """The new-project form starts from the firm's code edition and occupancy (admin: Firm settings)."""
+    defaults = firm.load(svc.sessions)
+    return {"code": defaults["code"], "occupancy": defaults["occupancy"]}
 
 
 @router.get("/", name="projects")

@@ -1,0 +1,57 @@
+"""Firm settings (admin only): the defaults a new project starts with and the firm's title-block name."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from fastapi import APIRouter, Depends, Request
+from fastapi.responses import RedirectResponse, Response
+
+from server import audit, firm
+from server.auth.permissions import Require
+from server.auth.roles import Permission
+from server.services import EditRejected
+from server.web.deps import FormDep, ServicesDep, TemplatesDep
+from server.web.templating import fmt_value
+from server.web.views import CHOICES, Choices, Page
+
+router = APIRouter(prefix="/admin/settings", tags=["firm settings"])
+ADMIN = [Depends(Require(Permission.ADMIN))]
+HISTORY_LIMIT = 20
+
+
+@dataclass(frozen=True)
+class FirmSettingsContext:
+    """The settings form (values as typed and messages after a refusal) and the latest changes."""
+
+    page: Page
+    values: dict[str, str]
+    errors: dict[str, str] = field(default_factory=dict)
+    saved: bool = False
+    history: list[audit.AuditLine] = field(default_factory=list)
+    choices: Choices = CHOICES
+
+
+def _render(
+    request: Request, svc: ServicesDep, templates: TemplatesDep, values, *, errors=None, saved=False, status=200
+) -> Response:
+    history = audit.events(svc.sessions, project_id=None, target=firm.AUDIT_TARGET, limit=HISTORY_LIMIT)
+    ctx = FirmSettingsContext(Page("Firm settings"), values, errors or {}, saved, history)
+    return templates.TemplateResponse(request, "firm/settings.html", {"ctx": ctx, "page": ctx.page}, status_code=status)
+
+
+@router.get("", name="firm_settings", dependencies=ADMIN)
+def show(request: Request, svc: ServicesDep, templates: TemplatesDep, saved: bool = False) -> Response:
+    values = {k: fmt_value(v) for k, v in firm.load(svc.sessions).items()}
+    return _render(request, svc, templates, values, saved=saved)
+
+
+@router.post("", name="firm_settings_update", dependencies=ADMIN)
+def update(request: Request, svc: ServicesDep, templates: TemplatesDep, form: FormDep) -> Response:
+    try:
+        firm.save(svc.sessions, firm.from_form(form))
+    except EditRejected as exc:  # nothing written: the form comes back as typed, each message beside its field
+        typed = {k: str(form.get(k) or "") for k in firm.FIELDS}
+        typed["include_future"] = "yes" if form.get("include_future") else "no"
+        return _render(request, svc, templates, typed, errors=exc.by_field(), status=422)
+    return RedirectResponse("/admin/settings?saved=true", status_code=303)
