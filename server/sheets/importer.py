@@ -803,6 +803,7 @@ def _two_column_rows(
             first = values[key_col] if key_col < len(values) else None
             if (
                 isinstance(first, str)
+                and key_col < len(header_key)
                 and normalise(first) == header_key[key_col]
                 and all(normalise(t) == h for t, h in zip(_row_texts(values, width), header_key, strict=False))
             ):

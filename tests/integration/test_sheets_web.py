@@ -402,3 +402,21 @@ def test_two_column_export_downloads_and_imports_back(client, app, demo_id):
     r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/commit", data=form, follow_redirects=False)
     assert r.status_code == 303
     assert app.state.services.snapshot(demo_id).model == before.model
+
+
+@pytest.mark.parametrize(("layout", "split"), [("two-column", "A"), ("two-column", "ZZZ"), ("sideways", "C"), ("", "")])
+def test_odd_layout_controls_give_a_page_not_an_error(client, app, demo_id, layout, split):
+    from tests.unit.sheets.test_two_column import messy_two_column_xlsx
+
+    leaf = _leaf(app, demo_id)
+    r = _upload(client, demo_id, "two.xlsx", messy_two_column_xlsx(), leaf.tag)
+    token = r.headers["location"].split("/imports/")[1].split("?")[0]
+    form = _form_of(client.get(r.headers["location"]).text)
+    form["plan-0-layout"], form["plan-0-split"] = layout, split
+    r = client.post(f"/projects/{demo_id}/sheets/imports/{token}/preview", data=form, headers=htmx("plan-0-split"))
+    assert r.status_code == 200 and 'id="import-work"' in r.text
+    shown = _form_of(r.text)
+    if layout == "two-column":
+        assert shown["plan-0-layout"] == "two-column" and shown["plan-0-split"] == "G"  # detected again
+    else:
+        assert shown["plan-0-layout"] == "single"

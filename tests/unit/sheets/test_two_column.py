@@ -9,14 +9,18 @@ from __future__ import annotations
 
 import io
 from collections.abc import Sequence
+from dataclasses import replace
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from server.calc.model import Category, Circuit
+from server.calc.projectfile import check_panel
 from server.sheets import plan_sheets, preview_upload, read_upload
 from server.sheets.errors import MappingError
-from server.sheets.importer import Severity
-from server.sheets.mapping import Layout, Role, detect_split, guess_mapping, parse_overrides
+from server.sheets.importer import Severity, SheetPlan, build_preview
+from server.sheets.mapping import ColumnMap, Layout, Role, detect_split, guess_mapping, parse_overrides
 from server.sheets.reader import Grid
 
 from .conftest import small_project
@@ -317,3 +321,36 @@ def test_switching_a_two_column_sheet_to_single_reads_only_the_left_half_as_circ
     pv = _preview(data, panel="LP-1", mapping={"layout": "single"})
     # the single-column reading sees one slot column: the right half's circuits are not read
     assert {c.slot for c in pv.circuits.get("LP-1", ())} <= {1, 3, 5, 7, 9, 11}
+
+
+# --------------------------------------------------------------------------- never a traceback
+
+_CELLS = st.one_of(
+    st.none(),
+    st.integers(-3, 50),
+    st.floats(-1.0, 1e5, allow_nan=False),
+    st.sampled_from(["—", "/", "-", '"', "2P", "3 pole", "do", "A", "B", "AB", "spare", "SPACE", "TOTAL"]),
+    st.sampled_from(["1,3,5", "2-4", "20/1", "40/3", "1.5 kVA", "12 A", "=SUM(C1:C3)", "x", ""]),
+    st.text(max_size=8),
+)
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    rows=st.lists(st.lists(_CELLS, min_size=0, max_size=11), min_size=0, max_size=14),
+    roles=st.lists(st.sampled_from(list(Role)), min_size=11, max_size=11),
+    split=st.integers(1, 10),
+)
+def test_any_two_column_sheet_and_mapping_gives_a_preview_never_an_exception(rows, roles, split):
+    """Whatever the cells and the roles, the preview comes back with its problems as messages."""
+    grid = Grid("LP-1", tuple(tuple(r) for r in [TWO_HEADERS, *rows]), width=11)
+    cmap = ColumnMap(header_row=0, roles=tuple(roles), headers=tuple(TWO_HEADERS), split=split).deduplicated()
+    project = small_project()
+    preview = build_preview("fuzz.xlsx", {"LP-1": grid}, [SheetPlan("LP-1", cmap, "LP-1")], project)
+    assert all(isinstance(line, str) for line in preview.problem_lines())
+    if preview.can_commit:
+        # what would be stored passes the engine's own panel check
+        problems: list = []
+        check_panel(replace(project.panels[0], circuits=preview.circuits["LP-1"]), problems)
+        assert problems == []
+        assert len({c.slot for c in preview.circuits["LP-1"]}) == len(preview.circuits["LP-1"])
