@@ -819,6 +819,7 @@ def _two_column_rows(
         started = True
         position += 1
         formulas = formulas_by_row.get(r, set())
+        given = {side: _given_slot(values, slot_cols[side]) for side in sides}
         for side in sides:
             content = {
                 c: v
@@ -833,17 +834,13 @@ def _two_column_rows(
             if numeric:
                 read_values = tuple(None if c in numeric else v for c, v in enumerate(values))
             slot_col = slot_cols[side]
-            slot_cell = values[slot_col] if slot_col is not None and slot_col < len(values) else None
-            slot: int | None = None
-            slot_error = ""
+            slot, slot_error = given[side]
             if slot_col is None:
-                slot = 2 * (position - 1) + (1 if side == Side.LEFT else 2)
-            elif slot_cell not in (None, "") and not _mark(slot_cell)[0]:
-                got = parse_slot(slot_cell)
-                if isinstance(got, str):
-                    slot_error = got
+                other = given[Side.RIGHT if side == Side.LEFT else Side.LEFT][0]
+                if other is not None:
+                    slot = other - 1 if side == Side.LEFT else other + 1  # beside the other half's slot
                 else:
-                    slot = got[0]
+                    slot = 2 * (position - 1) + (1 if side == Side.LEFT else 2)
             owner = open_[side]
             if owner is not None and not slot_error:
                 expected = owner.slot + 2 * (1 + len(owner.conts)) if owner.slot is not None else None
@@ -895,14 +892,29 @@ def _two_column_rows(
         if circuit is not None and tag is not None and tag in panels and not twice:
             by_panel.setdefault(tag, []).append((offset + len(out), circuit))
         out.append(row)
-    if inferring:
-        halves = " and ".join(s.value for s in sides if s in inferring)
+    if len(inferring) == 2:
         notes.append(
-            f"sheet {plan.sheet!r}: no circuit-number column on the {halves} half; slots are inferred from the row "
-            f"order (the n-th table row holds slot 2n-1 on the left and 2n on the right; blank rows inside the "
-            f"table count as rows). Map a 'slot' column if the sheet has one."
+            f"sheet {plan.sheet!r}: no circuit-number column on the left and right halves; slots are inferred from "
+            "the row order (the n-th table row holds slot 2n-1 on the left and 2n on the right; blank rows inside "
+            "the table count as rows). Map a 'slot' column if the sheet has one."
+        )
+    elif inferring:
+        (half,) = inferring
+        notes.append(
+            f"sheet {plan.sheet!r}: no circuit-number column on the {half.value} half; its slots are inferred beside "
+            f"the other half's (one more on the right, one less on the left), or from the row order where that is "
+            "blank. Map a 'slot' column if the sheet has one."
         )
     return _TwoColumnRows(out, notes)
+
+
+def _given_slot(values: tuple[CellValue, ...], slot_col: int | None) -> tuple[int | None, str]:
+    """The slot a half's circuit column gives (None when blank or a mark), or why it cannot be read."""
+    cell = values[slot_col] if slot_col is not None and slot_col < len(values) else None
+    if cell in (None, "") or _mark(cell)[0]:
+        return None, ""
+    got = parse_slot(cell)
+    return (None, got) if isinstance(got, str) else (got[0], "")
 
 
 def _ignored_row(plan: SheetPlan, r: int, values: tuple[CellValue, ...], width: int, why: str) -> PreviewRow:

@@ -231,6 +231,23 @@ def test_without_circuit_columns_slots_come_from_the_row_order_and_the_preview_s
     assert pv.error_count == 0 and pv.can_commit
 
 
+def test_a_half_without_its_own_circuit_column_sits_beside_the_other_half():
+    rows = [
+        ["CKT", "DESCRIPTION", "VA", "TRIP", "TRIP", "VA", "DESCRIPTION"],
+        [1, "Lights", 500, 20, 20, 700, "Receptacles"],
+        None,  # layout: with the left half numbered, a blank row is not a table row
+        [3, "Fan", 300, 15, None, None, None],
+        [5, "Heater", 1500, 20, 20, 400, "Sign"],
+    ]
+    pv = _preview(_xlsx(rows), panel="LP-1")
+    got = {c.slot: c.description for c in pv.circuits["LP-1"]}
+    assert got == {1: "Lights", 2: "Receptacles", 3: "Fan", 5: "Heater", 6: "Sign"}
+    inferred = {r.circuit.slot for r in pv.rows if r.circuit is not None and r.slot_inferred}
+    assert inferred == {2, 6}
+    (note,) = pv.notes
+    assert "no circuit-number column on the right half" in note
+
+
 def test_left_and_right_both_claiming_slot_7_is_an_error_naming_rows_and_columns():
     rows = [
         ["CKT", "DESCRIPTION", "VA", "TRIP", "TRIP", "VA", "DESCRIPTION", "CKT"],
