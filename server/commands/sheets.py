@@ -113,7 +113,8 @@ def import_sheet(
     layout is "single" or "two-column"; right_starts is the letter of the right half's first
     column; left / right look header text up within that half (headers repeat across halves);
     columns take letters anywhere.  A phase or panel column serves both halves.  A half
-    without a slot column gets its slots from the row order (marked * in the preview).
+    without a slot column takes the slot beside the other half's, or its place in the row
+    order (marked * in the preview).
     """
     from server.services import Conflict, NotFound
     from server.sheets import MappingError, SheetFileError, plan_sheets, preview_upload, read_upload
