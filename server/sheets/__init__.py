@@ -4,7 +4,8 @@ The pieces, in the order an import runs:
 
 * :mod:`.limits` — upload size, zip-bomb and macro checks before any parser runs;
 * :mod:`.reader` — the file as plain grids of values (formulas kept as text, never evaluated);
-* :mod:`.mapping` — the header row and what each column holds (guessed, then corrected);
+* :mod:`.mapping` — the header row and what each column holds (guessed, then corrected), one
+  circuit per row or two (odd slots in the left half, even slots in the right);
 * :mod:`.importer` — rows → circuits through the engine's rules, problems pinned to cells;
 * :mod:`.store` — the confirmed circuits written in one transaction (needs the database);
 * :mod:`.export` — circuit tables and the summary as XLSX / CSV.

@@ -8,6 +8,11 @@ adds what is particular to spreadsheets: reading slot and breaker notations ("1,
 "1-3-5", "20/1"), converting a kVA or amps column to VA, mapping category words, comparing a
 phase column with the slot, and skipping blank, repeated-header and totals rows.
 
+A two-column map (:attr:`~server.sheets.mapping.ColumnMap.split` set) reads each half of a row
+as its own circuit through the same path (:func:`_two_column_rows`): a multi-pole breaker whose
+further rows are blank, marked or repeat its description becomes one circuit, and a slot
+claimed by two halves is refused by row and column.
+
 Nothing is written here: :class:`ImportPreview` is shown to the user, and only
 :meth:`ImportPreview.circuits_by_panel` of a preview without errors is handed to the store.
 """
