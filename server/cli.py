@@ -30,6 +30,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "balance",
     "user",
     "backup",
+    "settings",
 )
 
 #: Command name → the module defining it.  A module is imported only when one of its commands
@@ -51,6 +52,7 @@ COMMANDS: dict[str, str] = {
     "user": "user",
     "backup": "backup",
     "restore": "backup",
+    "settings": "settings",
 }
 
 

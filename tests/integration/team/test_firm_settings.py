@@ -154,3 +154,36 @@ def test_each_save_is_audited_with_who_and_before_after(app):
     page = admin.get("/admin/settings").text
     history = page[page.index('id="firm-history"') :]
     assert "vd_feeder_pct" in history and "2.5" in history and "admin" in history
+
+
+def _cli(monkeypatch, db_url: str, args: list[str]):
+    from click.testing import CliRunner
+
+    from server.cli import cli
+
+    monkeypatch.setenv("PANELWRIGHT_DATABASE_URL", db_url)
+    return CliRunner().invoke(cli, ["settings", *args])
+
+
+def test_cli_show_and_set(monkeypatch, app, db_url):
+    r = _cli(monkeypatch, db_url, ["show"])
+    assert r.exit_code == 0, r.output
+    assert "vd_feeder_pct\t3\n" in r.output and "paper\ttabloid-landscape\n" in r.output
+    r = _cli(monkeypatch, db_url, ["set", "firm", "Tamsin Okafor Electrical"])  # invented
+    assert r.exit_code == 0, r.output
+    r = _cli(monkeypatch, db_url, ["set", "growth-margin-pct", "40"])
+    assert r.exit_code == 0 and "growth_margin_pct: 25 -> 40" in r.output
+    saved = firm.load(app.state.services.sessions)
+    assert saved["firm"] == "Tamsin Okafor Electrical" and saved["growth_margin_pct"] == 40.0
+    lines = audit.events(app.state.services.sessions, project_id=None, target=firm.AUDIT_TARGET)
+    assert lines[0].user.startswith("cli") and lines[0].after == {"growth_margin_pct": 40.0}
+
+
+def test_cli_refuses_bad_keys_and_values_with_status_2(monkeypatch, app, db_url):
+    r = _cli(monkeypatch, db_url, ["set", "colour", "teal"])
+    assert r.exit_code == 2 and "unknown setting 'colour'" in r.output and "vd_total_pct" in r.output
+    r = _cli(monkeypatch, db_url, ["set", "code", "NEC-1999"])
+    assert r.exit_code == 2 and "code not changed" in r.output and "NEC-2023" in r.output
+    r = _cli(monkeypatch, db_url, ["set", "vd_total_pct", "-1"])
+    assert r.exit_code == 2 and "must be greater than 0" in r.output
+    assert _firm_rows(app) == 0
