@@ -768,7 +768,8 @@ def _two_column_rows(
 
     A multi-pole breaker whose continuation rows are blank, marked ("—", "/", "2P") or repeat
     the description becomes one circuit with its poles; loads on its rows are summed.  Slots come
-    from each half's circuit column, or from the row order when a half has none.
+    from each half's circuit column; a half without one sits beside the other half's slot, or
+    takes its place in the row order.
     """
     cmap = plan.mapping
     sides = (Side.LEFT, Side.RIGHT)
@@ -779,6 +780,7 @@ def _two_column_rows(
     }
     slot_cols = {s: maps[s].column(Role.SLOT) for s in sides}
     inferring = {s for s in sides if slot_cols[s] is None}
+    breaker_cols = [c for c, r in enumerate(cmap.roles) if r in (Role.BREAKER, Role.POLES)]
     panel_col = cmap.column(Role.PANEL)
     width = max(grid.width, len(cmap.roles))
     header_key = tuple(normalise(h) for h in cmap.headers)
@@ -815,6 +817,10 @@ def _two_column_rows(
                 events.append(_ignored_row(plan, r, values, width, "repeated header row"))
                 continue
             slot_cells = [values[c] for c in slot_cols.values() if c is not None and c < len(values)]
+            if inferring:
+                # without circuit numbers to tell them apart, a totals row also has no breaker of its own
+                # (a load called "Demand meter" with its trip stays a circuit)
+                slot_cells += [values[c] for c in breaker_cols if c < len(values)]
             if all(v is None or v == "" for v in slot_cells) and _TOTAL_RE.search(
                 normalise(" ".join(_row_texts(values, width)))
             ):

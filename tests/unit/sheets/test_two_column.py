@@ -219,12 +219,12 @@ def test_without_circuit_columns_slots_come_from_the_row_order_and_the_preview_s
         ["Description", "kVA", "Breaker", "Description", "kVA", "Breaker"],
         ["Lights", 0.5, 20, "Receptacles", 0.72, 20],
         None,  # an empty pair of positions: slots 3 and 4
-        ["Heater", 1.5, 20, None, None, None],
-        ["Sub-total", 2.0, None, None, 0.72, None],
+        ["Heater", 1.5, 20, "Demand meter", 0.1, 15],  # a load's name, not a totals row: it has a breaker
+        ["Sub-total", 2.0, None, None, 0.82, None],
     ]
     pv = _preview(_xlsx(rows), panel="LP-1")
     got = {c.slot: (c.description, c.va) for c in pv.circuits["LP-1"]}
-    assert got == {1: ("Lights", 500.0), 2: ("Receptacles", 720.0), 5: ("Heater", 1500.0)}
+    assert got == {1: ("Lights", 500.0), 2: ("Receptacles", 720.0), 5: ("Heater", 1500.0), 6: ("Demand meter", 100.0)}
     assert all(r.slot_inferred for r in pv.rows if r.circuit is not None)
     (note,) = pv.notes
     assert "slots are inferred from the row order" in note and "left and right" in note
