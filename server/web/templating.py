@@ -114,6 +114,21 @@ def may(context: Any, permission: str) -> bool:
     return allows(user.role if user is not None else None, Permission(permission))
 
 
+@pass_context
+def new_project_code(context: Any) -> str:
+    """The code edition a new project starts with (the firm's setting), for the header of pages outside a project."""
+    from server import firm
+
+    request = context.get("request")
+    services = getattr(getattr(getattr(request, "app", None), "state", None), "services", None)
+    if services is None:
+        return firm.builtin_defaults()["code"]
+    try:
+        return firm.load(services.sessions)["code"]
+    except Exception:  # an error page must still render when the database cannot be read
+        return firm.builtin_defaults()["code"]
+
+
 SEVERITY_RANK = {Severity.ERROR: 3, Severity.WARNING: 2, Severity.NOTE: 1}
 
 
@@ -124,5 +139,5 @@ def make_templates() -> Jinja2Templates:
     env.trim_blocks = True
     env.lstrip_blocks = True
     env.filters.update(kva=fmt_kva, num=fmt_num, pct=fmt_pct, val=fmt_value)
-    env.globals.update(urls=Urls(), CAUTION=CAUTION, may=may)
+    env.globals.update(urls=Urls(), CAUTION=CAUTION, may=may, new_project_code=new_project_code)
     return templates

@@ -18,6 +18,18 @@ from server.web.views import CHOICES, Choices, Page
 router = APIRouter(prefix="/admin/settings", tags=["firm settings"])
 ADMIN = [Depends(Require(Permission.ADMIN))]
 HISTORY_LIMIT = 20
+#: The form's words for each setting, also used by the list of recent changes.
+LABELS = {
+    "firm": "Firm name",
+    "paper": "Paper",
+    "code": "Code edition",
+    "occupancy": "Occupancy",
+    "include_future": "Count future loads",
+    "vd_feeder_pct": "Feeder voltage drop limit (%)",
+    "vd_total_pct": "Total voltage drop limit (%)",
+    "imbalance_limit_pct": "Phase imbalance limit (%)",
+    "growth_margin_pct": "Growth margin for transformer sizing (%)",
+}
 
 
 @dataclass(frozen=True)
@@ -30,6 +42,7 @@ class FirmSettingsContext:
     saved: bool = False
     history: list[audit.AuditLine] = field(default_factory=list)
     choices: Choices = CHOICES
+    labels: dict[str, str] = field(default_factory=lambda: dict(LABELS))
 
 
 def _render(

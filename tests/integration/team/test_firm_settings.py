@@ -55,6 +55,7 @@ def test_admin_saves_settings_and_a_new_project_starts_from_them(app):
     new_form = form[form.index('id="new-project"') :]
     assert re.search(r'<option value="NEC-2020" selected>', new_form)
     assert re.search(r'<option value="school" selected>', new_form)
+    assert "new projects: <strong>NEC-2020</strong>" in form  # the header outside a project says so too
 
     r = admin.post("/projects", data={"name": "Library annex", "number": "26-014"}, follow_redirects=False)
     assert r.status_code == 303
@@ -153,7 +154,7 @@ def test_each_save_is_audited_with_who_and_before_after(app):
     assert lines[1].after["firm"] == GOOD["firm"] and lines[1].project_id is None
     page = admin.get("/admin/settings").text
     history = page[page.index('id="firm-history"') :]
-    assert "vd_feeder_pct" in history and "2.5" in history and "admin" in history
+    assert "Feeder voltage drop limit (%)" in history and "2.5" in history and "admin" in history
 
 
 def _cli(monkeypatch, db_url: str, args: list[str]):
