@@ -123,6 +123,8 @@ _RULES: tuple[tuple[str, Role | str], ...] = (
     (r"\b(ckt|cct|circ|circuit|slot|position|pos|no|number)\b|^ckt|^cct", Role.SLOT),
 )
 _COMPILED = tuple((re.compile(p), role) for p, role in _RULES)
+#: Any rule at all: one search answers "no role" for most texts (data rows met by the header search).
+_ANY_RULE = re.compile("|".join(f"(?:{p})" for p, _ in _RULES))
 
 
 def normalise(text: str) -> str:
@@ -134,7 +136,7 @@ def normalise(text: str) -> str:
 
 def guess_role(header: str) -> Role | str | None:
     t = normalise(header)
-    if not t:
+    if not t or not _ANY_RULE.search(t):
         return None
     for pattern, role in _COMPILED:
         if pattern.search(t):
