@@ -231,6 +231,20 @@ def test_without_circuit_columns_slots_come_from_the_row_order_and_the_preview_s
     assert pv.error_count == 0 and pv.can_commit
 
 
+def test_a_two_column_csv_reads_the_same_way():
+    text = (
+        "Ckt,Load,kVA,Trip,Ph,Trip,kVA,Load,Ckt\r\n"
+        "1,Lights,0.9,20,A,30,2.4,Dryer,2\r\n"
+        "3,Receptacles,0.72,20,B,/,2.4,/,4\r\n"
+        ",Total,1.62,,,,4.8,,\r\n"
+    )
+    pv = _preview(text.encode("utf-8"), name="two.csv", panel="LP-1")
+    assert pv.plans[0].mapping.split == 5
+    got = {c.slot: (c.poles, c.description, c.va) for c in pv.circuits["LP-1"]}
+    assert got == {1: (1, "Lights", 900.0), 2: (2, "Dryer", 4800.0), 3: (1, "Receptacles", 720.0)}
+    assert pv.can_commit and pv.warning_count == 1  # the dryer's load is the sum of its two rows
+
+
 def test_a_half_without_its_own_circuit_column_sits_beside_the_other_half():
     rows = [
         ["CKT", "DESCRIPTION", "VA", "TRIP", "TRIP", "VA", "DESCRIPTION"],
