@@ -20,14 +20,16 @@ from collections.abc import Mapping
 from dataclasses import replace
 from typing import Any
 
+from sqlalchemy import select
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, sessionmaker
 
+from server import versions
 from server.calc import projectfile as pf
 from server.calc.errors import Problem, ProjectFileError
 from server.calc.model import FORMAT_NAME, FORMAT_VERSION, ProjectInfo
 from server.db import models as db
-from server.services import EditRejected, blank_to_none
+from server.services import EditRejected, StaleEdit, blank_to_none
 
 #: The settings, in the order the screen and ``panelwright settings show`` list them.
 FIELDS: tuple[str, ...] = (
@@ -99,17 +101,40 @@ def load(sessions: sessionmaker[Session]) -> dict[str, Any]:
         return current(s)
 
 
-def save(sessions: sessionmaker[Session], values: Mapping[str, Any]) -> dict[str, Any]:
+def version(values: Mapping[str, Any]) -> str:
+    """Content version of the settings (see :mod:`server.versions`): the form carries the one it showed."""
+    return versions.of_plain(versions.plain({k: values[k] for k in FIELDS}))
+
+
+def save(
+    sessions: sessionmaker[Session],
+    values: Mapping[str, Any],
+    *,
+    expected_version: str | None = None,
+    typed: Mapping[str, Any] | None = None,
+) -> dict[str, Any]:
     """Check ``values`` (every setting; a missing one takes the file's default) and store them at once.
 
     Raises :class:`~server.services.EditRejected` before anything is written when a value breaks
-    a rule.  Only changed columns are written, so the audit row lists exactly what changed.
+    a rule, and :class:`~server.services.StaleEdit` when ``expected_version`` is given and someone
+    saved other settings since the form was drawn (carrying ``typed``, the form as the user typed
+    it, to show beside what is stored).  Only changed columns are written, so the audit
+    row lists exactly what changed.
     """
     checked = validate(values)
     for attempt in range(2):
         try:
             with sessions() as s, s.begin():
                 row = s.get(db.FirmSettings, ROW_ID, with_for_update=True)
+                stored = current(s)
+                if expected_version and version(stored) != expected_version:
+                    who = s.scalar(
+                        select(db.AuditEvent.user_name)
+                        .where(db.AuditEvent.target == AUDIT_TARGET)
+                        .order_by(db.AuditEvent.id.desc())
+                        .limit(1)
+                    )
+                    raise StaleEdit("The firm settings", stored, 0, who or "someone else", typed or values)
                 if row is None:
                     row = db.FirmSettings(id=ROW_ID)
                     s.add(row)

@@ -124,6 +124,23 @@ def test_a_refused_change_keeps_the_saved_settings(app):
     assert firm.load(app.state.services.sessions)["vd_total_pct"] == 4.5  # the valid field was not written either
 
 
+def test_a_form_drawn_before_another_admins_save_is_refused_with_409(app):
+    first = _admin(app)
+    second = TestClient(app, raise_server_exceptions=False)
+    sign_in(second, app, "admin", "ottilie")
+    drawn = re.search(r'name="version" value="([0-9a-f]+)"', first.get("/admin/settings").text).group(1)
+    assert second.post("/admin/settings", data=GOOD, follow_redirects=False).status_code == 303
+    mine = dict(GOOD, firm="Brackwater Design Group", version=drawn)  # invented
+    r = first.post("/admin/settings", data=mine)
+    assert r.status_code == 409
+    assert "changed by ottilie" in r.text and "nothing was saved" in r.text
+    assert 'value="Brackwater Design Group"' in r.text  # my typing kept
+    assert firm.load(app.state.services.sessions)["firm"] == GOOD["firm"]  # theirs stands
+    again = re.search(r'name="version" value="([0-9a-f]+)"', r.text).group(1)
+    assert first.post("/admin/settings", data=dict(mine, version=again), follow_redirects=False).status_code == 303
+    assert firm.load(app.state.services.sessions)["firm"] == "Brackwater Design Group"
+
+
 def test_engineer_and_reviewer_get_403_anonymous_the_sign_in_page(app):
     for role in ("engineer", "reviewer"):
         c = TestClient(app, raise_server_exceptions=False)
