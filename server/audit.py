@@ -1,4 +1,6 @@
-"""The audit trail: every change to a project, an account or the firm settings records who, when and what (before/after as JSON).
+"""The audit trail: every change to a project, an account or the firm settings records who, when, what.
+
+What is the changed fields before and after, as JSON.
 
 One listener on the service's sessionmaker (:func:`install`) sees every flush, whichever code
 made it (editor, API, import, spreadsheet, CLI), and writes one ``audit_events`` row per
