@@ -36,8 +36,16 @@ def plain(value: Any) -> Any:
     return value
 
 
+#: Optional fields the canonical file leaves out at their default (projectfile.dump_project): a
+#: version must not depend on whether the element came from the file or from the model.
+_OMITTED_AT_DEFAULT = {"feeder_rotation": 0}
+
+
 def of_plain(element: dict[str, Any]) -> str:
     body = {k: v for k, v in element.items() if k != "circuits"}
+    for name, default in _OMITTED_AT_DEFAULT.items():
+        if body.get(name, default) == default:
+            body.pop(name, None)
     return hashlib.sha256(json.dumps(body, sort_keys=True, default=str).encode("utf-8")).hexdigest()[:16]
 
 
