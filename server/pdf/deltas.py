@@ -24,6 +24,7 @@ from typing import Any
 #: Panel input fields printed in the panel data block; a change marks that field.
 PANEL_FIELDS: tuple[str, ...] = (
     "system",
+    "feeder_rotation",
     "fed_from",
     "bus_amps",
     "main_amps",

@@ -157,3 +157,20 @@ def test_first_issue_and_draft_have_no_markers(tmp_path):
         make_set(project, result, history_for(project, result, current=None), select=["LP-1"], cache_dir=tmp_path)[0]
     )
     assert "DRAFT — not issued" in draft[0].flat
+
+
+def test_a_feeder_landing_is_printed_and_marked_when_it_changes(tmp_path):
+    # LP-1K is a 208Y/120 panel fed from LP-1: landing its feeder rotated is allowed.
+    old = load_project_file(DEMO_FILE)
+    data = copy.deepcopy(dump_project(old))
+    _panel(data, "LP-1K")["feeder_rotation"] = 1
+    new = parse_project(json.loads(json.dumps(data)))
+    result = compute(new)
+    history = history_for(
+        new, result, current=REV2, previous=old, previous_revision=RevisionInfo(1, "2026-11-30", "Issued for permit")
+    )
+    pages = panel_pages(read_pages(make_set(new, result, history, select=["LP-1K", "LP-2"], cache_dir=tmp_path)[0]))
+    lp1k = " ".join(p.flat for p in pages["LP-1K"])
+    assert "landed A→B, B→C, C→A" in lp1k
+    assert f"{MARKER} 2 landed A→B" in lp1k  # the revision 2 delta marker on the changed landing
+    assert "landed" not in " ".join(p.flat for p in pages["LP-2"])
