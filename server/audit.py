@@ -202,20 +202,43 @@ def _after_flush(session: Session, _ctx: Any) -> None:
         pid, tag, target = _where(obj, places)
         if isinstance(obj, db.Project) and pid is None:
             pid = inspect(obj).identity[0] if inspect(obj).identity else None
-        rows.append(
-            {
-                "at": now,
-                "user_name": actor[:60],
-                "project_id": pid,
-                "panel_tag": tag,
-                "action": action,
-                "target": target[:120],
-                "before_json": None if before is None else json.dumps(before, sort_keys=True, default=str),
-                "after_json": None if after is None else json.dumps(after, sort_keys=True, default=str),
-            }
-        )
+        rows.append(_row(now, actor, pid, tag, action, target, before, after))
     if rows:
         session.connection().execute(insert(db.AuditEvent), rows)
+
+
+def _row(
+    at: datetime,
+    actor: str,
+    project_id: int | None,
+    panel_tag: str | None,
+    action: str,
+    target: str,
+    before: dict[str, Any] | None,
+    after: dict[str, Any] | None,
+) -> dict[str, Any]:
+    return {
+        "at": at,
+        "user_name": actor[:60],
+        "project_id": project_id,
+        "panel_tag": panel_tag,
+        "action": action,
+        "target": target[:120],
+        "before_json": None if before is None else json.dumps(before, sort_keys=True, default=str),
+        "after_json": None if after is None else json.dumps(after, sort_keys=True, default=str),
+    }
+
+
+def record_circuit_update(
+    session: Session, *, project_id: int, tag: str, slot: int, before: dict[str, Any], after: dict[str, Any]
+) -> None:
+    """The audit row of a circuit changed by a plain UPDATE (the circuit-edit path writes without
+    loading the row, so no flush sees it): the same row the flush hook writes for an ORM update."""
+    actor = ACTOR.get()
+    session.connection().execute(
+        insert(db.AuditEvent),
+        [_row(datetime.now(UTC), actor, project_id, tag, "update", f"{tag} circuit {slot}", before, after)],
+    )
 
 
 def install(sessions: sessionmaker[Session]) -> None:

@@ -25,7 +25,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field, fields, replace
 from typing import Any
 
-from sqlalchemy import select
+from sqlalchemy import select, update
 from sqlalchemy.orm import Session, sessionmaker
 
 from server.calc import projectfile as pf
@@ -714,24 +714,90 @@ class Services:
                 problems = [p for p in problems if p.tag == tag]  # other panels are unchanged
                 if problems:
                     raise EditRejected(problems, form)  # rolls the transaction back, version claim included
-                row = repo.find_circuit(s, project_id=project_id, tag=tag, slot=slot)
-                panel_id = row.panel_id if row is not None else repo.panel_id(s, project_id=project_id, tag=tag)
-                if panel_id is None:
-                    raise NotFound(f"project {project_id} has no panel {tag}")
-                if expected_version is not None and row is not None and row.version != expected_version:
-                    raise StaleEdit.of(s, project_id, tag, row, form)  # rolls the transaction back
-                new_version: int | None = None
-                if circuit is None:
-                    if row is not None:
-                        s.delete(row)
-                else:
-                    if row is None:
-                        row = db.Circuit(panel_id=panel_id, slot=slot, version=1)
-                        s.add(row)
-                    _apply_circuit(row, circuit)
-                    s.flush()
-                    new_version = row.version
+                known_version = snap.circuit_versions.get(tag, {}).get(slot)
+                old = panel.circuit_at(slot)
+                new_version: int | None
+                if circuit is not None and old is not None and known_version is not None:
+                    # The common edit, an existing circuit changed: the entry is at the version just
+                    # claimed minus one, so it holds the row's values and version; one UPDATE, no load.
+                    if expected_version is not None and known_version != expected_version:
+                        raise self._stale(s, project_id, tag, slot, form)  # rolls the transaction back
+                    new_version = self._update_circuit_row(s, project_id, tag, slot, old, circuit, known_version, form)
+                else:  # a circuit added or removed: through the ORM rows
+                    new_version = self._write_circuit_row(s, project_id, tag, slot, circuit, expected_version, form)
             return self._advance(snap, new_model, new_panel, slot, new_version)
+
+    @staticmethod
+    def _write_circuit_row(
+        s: Session,
+        project_id: int,
+        tag: str,
+        slot: int,
+        circuit: Circuit | None,
+        expected_version: int | None,
+        form: Mapping[str, Any],
+    ) -> int | None:
+        """Add, change or delete the row of circuit ``slot`` through the ORM (the flush writes its audit row)."""
+        row = repo.find_circuit(s, project_id=project_id, tag=tag, slot=slot)
+        panel_id = row.panel_id if row is not None else repo.panel_id(s, project_id=project_id, tag=tag)
+        if panel_id is None:
+            raise NotFound(f"project {project_id} has no panel {tag}")
+        if expected_version is not None and row is not None and row.version != expected_version:
+            raise StaleEdit.of(s, project_id, tag, row, form)  # rolls the transaction back
+        if circuit is None:
+            if row is not None:
+                s.delete(row)
+            return None
+        if row is None:
+            row = db.Circuit(panel_id=panel_id, slot=slot, version=1)
+            s.add(row)
+        _apply_circuit(row, circuit)
+        s.flush()
+        return row.version
+
+    @staticmethod
+    def _stale(s: Session, project_id: int, tag: str, slot: int, form: Mapping[str, Any]) -> StaleEdit:
+        row = repo.find_circuit(s, project_id=project_id, tag=tag, slot=slot)
+        assert row is not None
+        return StaleEdit.of(s, project_id, tag, row, form)
+
+    def _update_circuit_row(
+        self,
+        s: Session,
+        project_id: int,
+        tag: str,
+        slot: int,
+        old: Circuit,
+        new: Circuit,
+        version: int,
+        form: Mapping[str, Any],
+    ) -> int:
+        """Write the changed fields of circuit ``slot`` with one UPDATE (guarded by the version the
+        entry knows) and its audit row; the new row version (unchanged when nothing changed)."""
+        before: dict[str, Any] = {}
+        after: dict[str, Any] = {}
+        for n in _CIRCUIT_FIELDS:
+            a, b = getattr(old, n), getattr(new, n)
+            a, b = getattr(a, "value", a), getattr(b, "value", b)  # StrEnum → its string, as stored
+            if a != b:
+                col = _COLUMN.get(n, n)
+                before[col], after[col] = a, b
+        if not after:
+            return version  # nothing to write, as the ORM path would not either
+        panel_id = select(db.Panel.id).where(db.Panel.project_id == project_id, db.Panel.tag == tag).scalar_subquery()
+        stmt = (
+            update(db.Circuit)
+            .where(db.Circuit.panel_id == panel_id, db.Circuit.slot == slot, db.Circuit.version == version)
+            .values(**after, version=version + 1)
+            .returning(db.Circuit.version)
+        )
+        written = s.connection().execute(stmt).scalar()
+        if written is None:  # the row is not what the entry says: refuse as stale rather than guess
+            raise self._stale(s, project_id, tag, slot, form)
+        from server import audit
+
+        audit.record_circuit_update(s, project_id=project_id, tag=tag, slot=slot, before=before, after=after)
+        return written
 
     def _advance(
         self, snap: Snapshot, new_model: Project, new_panel: Panel, slot: int, new_version: int | None
