@@ -249,7 +249,8 @@ class Project:
     # edit makes a new one); the first element wins if a not-yet-validated file repeats a tag.
 
     @cached_property
-    def _by_tag(self) -> tuple[dict[str, Source], dict[str, Transformer], dict[str, Panel]]:
+    def _by_tag(self) -> tuple[dict[str, Source], dict[str, Transformer], dict[str, Panel], dict[str, int] | None]:
+        """Sources, transformers and panels by tag, and each panel's position (None when a tag repeats)."""
         sources: dict[str, Source] = {}
         transformers: dict[str, Transformer] = {}
         panels: dict[str, Panel] = {}
@@ -259,23 +260,27 @@ class Project:
             transformers.setdefault(t.tag, t)
         for p in self.panels:
             panels.setdefault(p.tag, p)
-        return sources, transformers, panels
+        positions = {p.tag: i for i, p in enumerate(self.panels)} if len(panels) == len(self.panels) else None
+        return sources, transformers, panels, positions
 
     def panel(self, tag: str) -> Panel | None:
         return self._by_tag[2].get(tag)
 
     def with_panel(self, panel: Panel) -> Project:
-        """A copy with the panel of the same tag replaced; the tag index, when built, is carried
-        over with that one entry changed instead of being rebuilt (an edit's path)."""
-        new = Project(
-            self.project,
-            self.sources,
-            self.transformers,
-            tuple(panel if p.tag == panel.tag else p for p in self.panels),
-        )
+        """A copy with the panel of the same tag replaced.  With the index built (an edit's path),
+        the new panel tuple is spliced at the known position and the index carried over with one
+        entry changed: no pass over every panel."""
         index = self.__dict__.get("_by_tag")
-        if index is not None and panel.tag in index[2]:
-            new.__dict__["_by_tag"] = (index[0], index[1], {**index[2], panel.tag: panel})
+        i = index[3].get(panel.tag) if index is not None and index[3] is not None else None
+        if i is None:
+            return Project(
+                self.project,
+                self.sources,
+                self.transformers,
+                tuple(panel if p.tag == panel.tag else p for p in self.panels),
+            )
+        new = Project(self.project, self.sources, self.transformers, (*self.panels[:i], panel, *self.panels[i + 1 :]))
+        new.__dict__["_by_tag"] = (index[0], index[1], {**index[2], panel.tag: panel}, index[3])
         return new
 
     def transformer(self, tag: str) -> Transformer | None:

@@ -56,3 +56,23 @@ def test_with_panel_keeps_lookups_right() -> None:
         assert q.transformer("T1") is base.transformers[0] and q.source("S1") is base.sources[0]
         assert base.panel("LP1") is base.panels[1]
         assert q == replace(p, panels=(p.panels[0], new_lp1))
+
+
+def test_with_panel_on_a_repeated_tag_replaces_every_copy() -> None:
+    first, second = Panel("LP1", "208Y/120"), Panel("LP1", "480Y/277")
+    p = Project(ProjectInfo(name="Repeat"), panels=(first, Panel("MDP", "480Y/277"), second))
+    assert p.panel("MDP") is not None  # index built; positions are not trusted with a repeated tag
+    new = Panel("LP1", "208Y/120", spaces=12)
+    q = p.with_panel(new)
+    assert q.panels == (new, p.panels[1], new)
+
+
+def test_with_panel_keeps_order_at_every_position() -> None:
+    panels = tuple(Panel(f"P{i}", "208Y/120") for i in range(5))
+    p = Project(ProjectInfo(name="Order"), panels=panels)
+    p.panel("P0")
+    for i in range(5):
+        new = Panel(f"P{i}", "208Y/120", spaces=30)
+        q = p.with_panel(new)
+        assert q.panels == (*panels[:i], new, *panels[i + 1 :])
+        assert q.with_panel(panels[i]).panels == panels  # the carried index still finds the position
