@@ -580,6 +580,7 @@ class Calculator:
         self.by_tag = sorted(self.order, key=lambda n: n.tag)
         self._vd_note = _tables.section("feeder_vd_note", self.code)
         self._warnings_dirty = True
+        self._warned: list[_Node] | None = None  # by_tag nodes that have warnings; None: to be listed
         self._all_warnings: tuple[CalcWarning, ...] = ()
         self._result: ProjectResult | None = None  # None: the next _assemble builds every entry
         self._reissued: list[_Node] = []  # nodes whose final result _top_down replaced since _assemble
@@ -1161,6 +1162,8 @@ class Calculator:
             node.final_warnings = warnings
             groups = tuple(tuple(w for w in warnings if w.severity is sev) for sev in _SEVERITY_ORDER)
             if groups != node.final_by_severity:
+                if any(groups) != any(node.final_by_severity):
+                    self._warned = None  # the node joins or leaves the nodes with warnings
                 node.final_by_severity = groups
                 self._warnings_dirty = True
 
@@ -1220,12 +1223,14 @@ class Calculator:
         # rebuilt only when some node's warnings changed.
         if self._warnings_dirty:
             warnings: list[CalcWarning] = []
-            by_tag = self.by_tag
+            if self._warned is None:
+                self._warned = [n for n in self.by_tag if any(n.final_by_severity)]
+            warned = self._warned
             for rank in range(len(_SEVERITY_ORDER)):
-                for node in by_tag:
-                    groups = node.final_by_severity
-                    if groups and groups[rank]:
-                        warnings.extend(groups[rank])
+                for node in warned:
+                    group = node.final_by_severity[rank]
+                    if group:
+                        warnings.extend(group)
             self._all_warnings = tuple(warnings)
             self._warnings_dirty = False
         self._result = ProjectResult(

@@ -120,7 +120,9 @@ def badge(snap: Snapshot, tag: str) -> Badge:
         )
     s = model.source(tag)
     sr = result.sources.get(tag)
-    own = [w for w in result.warnings if w.tag == tag]
+    # A source has no warnings of its own (server.calc.engine: a service's findings are its main
+    # panel's), so its badge needs no pass over the project's warnings on every edit.
+    own: tuple = ()
     return Badge(
         tag,
         "source",

@@ -613,3 +613,15 @@ def test_incremental_update_of_a_landing_equals_a_full_compute() -> None:
         panel = replace(project.panel("P"), feeder_rotation=rotation)
         project = replace_panel(project, panel)
         assert calc.update_panel(panel) == compute_project(project)
+
+
+def test_sources_carry_no_warnings_of_their_own() -> None:
+    # The screens rely on this (a source's badge shows no warnings without scanning the project's).
+    from seed_demo import DEMO_FILE
+    from server.calc.projectfile import load_project_file
+    from tests.benchmarks.generate import generate_project
+
+    for project in (load_project_file(DEMO_FILE), generate_project()):
+        result = compute_project(project)
+        sources = {s.tag for s in project.sources}
+        assert result.warnings and not [w for w in result.warnings if w.tag in sources]
