@@ -17,7 +17,7 @@ from server.calc.projectfile import FEEDER_ROTATIONS, PAPERS, rotation_allowed
 from server.calc.results import CalcWarning, CircuitResult, PanelResult, ProjectResult, Severity, TransformerResult
 from server.calc.systems import SYSTEMS, breaker_slots, slot_phase
 from server.calc.tables import conductor_sizes
-from server.services import CIRCUIT_FORM_FIELDS, ProjectSummary, Snapshot
+from server.services import CIRCUIT_FORM_FIELDS, FEEDER_FORM_FIELDS, PANEL_FORM_FIELDS, ProjectSummary, Snapshot
 from server.web.templating import SEVERITY_RANK, Urls, fmt_value
 
 URLS = Urls()
@@ -369,20 +369,8 @@ def feeder_landings(system: str) -> tuple[tuple[str, str], ...]:
 
 
 def panel_header_values(panel: Panel) -> dict[str, str]:
-    values = {
-        k: fmt_value(getattr(panel, k))
-        for k in (
-            "description",
-            "bus_amps",
-            "main_amps",
-            "spaces",
-            "sccr_ka",
-            "location",
-            "mounting",
-            "feeder_rotation",
-        )
-    }
-    for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c"):
+    values = {k: fmt_value(getattr(panel, k)) for k in PANEL_FORM_FIELDS}
+    for k in FEEDER_FORM_FIELDS:
         values[f"feeder_{k}"] = fmt_value(getattr(panel.feeder, k))
     return values
 

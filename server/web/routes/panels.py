@@ -11,7 +11,14 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import RedirectResponse, Response
 
-from server.services import CIRCUIT_FORM_FIELDS, EditRejected, Snapshot, StaleEdit
+from server.services import (
+    CIRCUIT_FORM_FIELDS,
+    FEEDER_FORM_FIELDS,
+    PANEL_FORM_FIELDS,
+    EditRejected,
+    Snapshot,
+    StaleEdit,
+)
 from server.web.conflicts import conflict_response, expected_version, form_conflict_message
 from server.web.deps import FormDep, HtmxDep, ServicesDep, TemplatesDep
 from server.web.views import PanelContext, SideCell, panel_context
@@ -59,20 +66,7 @@ def _panel_errors(exc: EditRejected) -> dict[str, str]:
     return out
 
 
-_HEADER_FIELDS = {
-    "description",
-    "bus_amps",
-    "main_amps",
-    "spaces",
-    "sccr_ka",
-    "location",
-    "mounting",
-    "feeder_rotation",
-    *(
-        f"feeder_{k}"
-        for k in ("length_ft", "material", "conduit", "sets", "size", "ocpd_amps", "insulation_c", "ambient_c")
-    ),
-}
+_HEADER_FIELDS = {*PANEL_FORM_FIELDS, *(f"feeder_{k}" for k in FEEDER_FORM_FIELDS)}
 
 
 @router.post(CIRCUIT, name="circuit_update")
