@@ -229,15 +229,35 @@ def _row(
     }
 
 
+def record(
+    session: Session,
+    *,
+    project_id: int | None,
+    panel_tag: str | None,
+    action: str,
+    target: str,
+    before: dict[str, Any] | None,
+    after: dict[str, Any] | None,
+) -> None:
+    """One audit row for a change written with plain statements (no flush sees it), by the
+    request's actor, in the session's transaction."""
+    row = _row(datetime.now(UTC), ACTOR.get(), project_id, panel_tag, action, target, before, after)
+    session.connection().execute(insert(db.AuditEvent), [row])
+
+
 def record_circuit_update(
     session: Session, *, project_id: int, tag: str, slot: int, before: dict[str, Any], after: dict[str, Any]
 ) -> None:
     """The audit row of a circuit changed by a plain UPDATE (the circuit-edit path writes without
-    loading the row, so no flush sees it): the same row the flush hook writes for an ORM update."""
-    actor = ACTOR.get()
-    session.connection().execute(
-        insert(db.AuditEvent),
-        [_row(datetime.now(UTC), actor, project_id, tag, "update", f"{tag} circuit {slot}", before, after)],
+    loading the row): the same row the flush hook writes for an ORM update."""
+    record(
+        session,
+        project_id=project_id,
+        panel_tag=tag,
+        action="update",
+        target=f"{tag} circuit {slot}",
+        before=before,
+        after=after,
     )
 
 

@@ -43,10 +43,10 @@ import logging
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
-from datetime import UTC, datetime
 from typing import Any
 
-from sqlalchemy import insert, select, update
+from sqlalchemy import select, update
+from sqlalchemy.orm import Session
 
 from server import audit
 from server.calc import projectfile as pf
@@ -281,6 +281,34 @@ def _last_changed_by(svc: Services, project_id: int, tag: str) -> str | None:
         )
 
 
+def _move_circuit_rows(s: Session, panel_id: int, moves: Sequence[Move]) -> tuple[list[Any], int]:
+    """Move circuit rows of one panel to their new slots; returns the panel's rows as they were
+    read (id, slot, version) and the version given to the moved ones.
+
+    Two steps so (panel_id, slot) stays unique after every statement: lift, then set down."""
+    rows = s.execute(
+        select(db.Circuit.id, db.Circuit.slot, db.Circuit.version).where(db.Circuit.panel_id == panel_id)
+    ).all()
+    by_slot = {r.slot: r for r in rows}
+    new_version = max((r.version or 0 for r in rows), default=0) + 1
+    moved = [(by_slot[m.from_slot].id, m.to_slot) for m in moves]
+    for i, (cid, _to) in enumerate(moved):
+        s.execute(
+            update(db.Circuit)
+            .where(db.Circuit.id == cid)
+            .values(slot=-(i + 1))
+            .execution_options(synchronize_session=False)
+        )
+    for cid, to_slot in moved:
+        s.execute(
+            update(db.Circuit)
+            .where(db.Circuit.id == cid)
+            .values(slot=to_slot, version=new_version)
+            .execution_options(synchronize_session=False)
+        )
+    return list(rows), new_version
+
+
 def _advance_cache(svc: Services, snap: Snapshot, after: Panel, versions: dict[int, int]) -> None:
     """Bring the cached calculator to the version just written with an incremental recompute.
 
@@ -359,41 +387,15 @@ def rearrange(
             panel_id = repo.panel_id(s, project_id=project_id, tag=tag)
             if panel_id is None:
                 raise NotFound(f"project {project_id} has no panel {tag}")
-            rows = s.execute(
-                select(db.Circuit.id, db.Circuit.slot, db.Circuit.version).where(db.Circuit.panel_id == panel_id)
-            ).all()
-            by_slot = {r.slot: r for r in rows}
-            new_version = max((r.version or 0 for r in rows), default=0) + 1
-            moved = [(by_slot[m.from_slot].id, m.to_slot) for m in moves]
-            # Two steps so (panel_id, slot) stays unique after every statement: lift, then set down.
-            for i, (cid, _to) in enumerate(moved):
-                s.execute(
-                    update(db.Circuit)
-                    .where(db.Circuit.id == cid)
-                    .values(slot=-(i + 1))
-                    .execution_options(synchronize_session=False)
-                )
-            for cid, to_slot in moved:
-                s.execute(
-                    update(db.Circuit)
-                    .where(db.Circuit.id == cid)
-                    .values(slot=to_slot, version=new_version)
-                    .execution_options(synchronize_session=False)
-                )
-            s.execute(
-                insert(db.AuditEvent),
-                [
-                    {
-                        "at": datetime.now(UTC),
-                        "user_name": audit.ACTOR.get()[:60],
-                        "project_id": project_id,
-                        "panel_tag": tag,
-                        "action": action,
-                        "target": f"panel {tag} slots"[:120],
-                        "before_json": json.dumps(before_json, sort_keys=True),
-                        "after_json": json.dumps(after_json, sort_keys=True),
-                    }
-                ],
+            rows, new_version = _move_circuit_rows(s, panel_id, moves)
+            audit.record(
+                s,
+                project_id=project_id,
+                panel_tag=tag,
+                action=action,
+                target=f"panel {tag} slots",
+                before=before_json,
+                after=after_json,
             )
             versions = {r.slot: r.version for r in rows if r.slot not in {m.from_slot for m in moves}}
             versions.update({m.to_slot: new_version for m in moves})
@@ -625,40 +627,15 @@ def rearrange_secondary(
                     )
                 if not plan.moves:
                     continue
-                rows = s.execute(
-                    select(db.Circuit.id, db.Circuit.slot, db.Circuit.version).where(db.Circuit.panel_id == panel_id)
-                ).all()
-                by_slot = {r.slot: r for r in rows}
-                new_version = max((r.version or 0 for r in rows), default=0) + 1
-                moved = [(by_slot[m.from_slot].id, m.to_slot) for m in plan.moves]
-                for i, (cid, _to) in enumerate(moved):  # lift, then set down: (panel_id, slot) stays unique
-                    s.execute(
-                        update(db.Circuit)
-                        .where(db.Circuit.id == cid)
-                        .values(slot=-(i + 1))
-                        .execution_options(synchronize_session=False)
-                    )
-                for cid, to_slot in moved:
-                    s.execute(
-                        update(db.Circuit)
-                        .where(db.Circuit.id == cid)
-                        .values(slot=to_slot, version=new_version)
-                        .execution_options(synchronize_session=False)
-                    )
-            s.execute(
-                insert(db.AuditEvent),
-                [
-                    {
-                        "at": datetime.now(UTC),
-                        "user_name": audit.ACTOR.get()[:60],
-                        "project_id": project_id,
-                        "panel_tag": None,
-                        "action": action,
-                        "target": f"transformer {tag} secondary"[:120],
-                        "before_json": json.dumps(before_json, sort_keys=True, ensure_ascii=False),
-                        "after_json": json.dumps(after_json, sort_keys=True, ensure_ascii=False),
-                    }
-                ],
+                _move_circuit_rows(s, panel_id, plan.moves)
+            audit.record(
+                s,
+                project_id=project_id,
+                panel_tag=None,
+                action=action,
+                target=f"transformer {tag} secondary",
+                before=before_json,
+                after=after_json,
             )
         svc.cache.drop(project_id)  # several panels changed: the next read rebuilds the calculator
         new_snap = svc.snapshot(project_id)
