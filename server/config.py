@@ -69,6 +69,14 @@ class Settings(BaseSettings):
             "a temporary folder for the CLI (read by server/pdf/render.py)"
         ),
     )
+    pdf_keep_sets: int = Field(
+        20,
+        ge=1,
+        description=(
+            "Finished PDF sets kept per project in <pdf cache>/sets (older ones are deleted when a new set "
+            "finishes; read by server/pdf/jobs.py)"
+        ),
+    )
     backup_keep: int = Field(14, ge=1, description="How many daily backups to keep in the backup folder")
 
     @field_validator("database_url")
