@@ -3,6 +3,9 @@
 ``POST /projects/{pid}/pdf`` (optional ``sheets``: a panel tag for the panel's own sheet)
 queues a job and answers with the progress fragment (htmx) or redirects to the job page.
 ``GET …/pdf/jobs/{id}`` is the page, or with htmx the fragment; ``…/download`` sends the PDF.
+Finished sets are listed on the PDF page; their records on disk bring them back after a restart
+(:mod:`server.pdf.jobs`).  A job id in a URL must be one the registry knows (32 hex digits, its
+PDF inside the sets folder); anything else is a 404.
 The set itself comes from :mod:`server.pdf` (the same result objects as every screen).
 """
 
@@ -10,7 +13,9 @@ from __future__ import annotations
 
 import os
 import re
+import threading
 from dataclasses import dataclass
+from pathlib import Path
 
 from fastapi import APIRouter, Depends, Form, Request
 from fastapi.responses import FileResponse, RedirectResponse, Response
@@ -27,6 +32,7 @@ router = APIRouter(tags=["pdf"])
 #: Making a PDF changes nothing stored: reading the project is enough, so reviewers may print too.
 READ = [Depends(Require(Permission.READ))]
 BASE = "/projects/{pid}/pdf"
+_registry_lock = threading.Lock()
 
 
 @dataclass(frozen=True)
@@ -42,17 +48,24 @@ class PdfJobContext:
 def registry(request: Request) -> JobRegistry:
     """The app's job registry, made on first use (cache: the app's ``pdf_cache_dir`` setting or ./var/pdf-cache)."""
     reg = getattr(request.app.state, "pdf_jobs", None)
-    if reg is None:
-        cache = default_cache_dir(settings=getattr(request.app.state, "settings", None))
-        reg = JobRegistry(cache / "sets", cache)
-        request.app.state.pdf_jobs = reg
+    if reg is not None:
+        return reg
+    with _registry_lock:  # one registry per app, even when the first requests arrive together
+        reg = getattr(request.app.state, "pdf_jobs", None)
+        if reg is None:
+            settings = getattr(request.app.state, "settings", None)
+            cache = default_cache_dir(settings=settings)
+            keep = settings.pdf_keep_sets if settings is not None else 20
+            reg = JobRegistry(cache / "sets", cache, keep=keep)
+            request.app.state.pdf_jobs = reg
     return reg
 
 
 def _job(request: Request, pid: int, job_id: str) -> Job:
     job = registry(request).get(job_id)
     if job is None or job.project_id != pid:
-        raise NotFound(f"no PDF job {job_id} for project {pid} (jobs are kept while the server runs)")
+        shown = job_id if re.fullmatch(r"[0-9a-f]{32}", job_id) else "with that id"
+        raise NotFound(f"no PDF job {shown} for project {pid}")
     return job
 
 
@@ -68,6 +81,8 @@ class PdfPageContext:
     page: Page
     panels: list[str]
     revision: str  # what the set prints: "revision N" or "draft (not issued)"
+    finished: list[Job]  # the project's finished sets, newest first
+    keep: int  # how many finished sets a project keeps
 
 
 @router.get(BASE, name="pdf_page", dependencies=READ)
@@ -77,7 +92,10 @@ def pdf_page(request: Request, pid: int, svc: ServicesDep, templates: TemplatesD
 
     history = stored_set(svc, pid).history
     revision = f"revision {history.current.number}" if history.current else "a draft (changed since the last issue)"
-    ctx = PdfPageContext(page(snap, "PDF set", "pdf"), [p.tag for p in snap.model.panels], revision)
+    reg = registry(request)
+    ctx = PdfPageContext(
+        page(snap, "PDF set", "pdf"), [p.tag for p in snap.model.panels], revision, reg.finished_sets(pid), reg.keep
+    )
     return templates.TemplateResponse(request, "pdfjobs/index.html", {"ctx": ctx, "page": ctx.page})
 
 
@@ -98,7 +116,15 @@ def start(
     stem = re.sub(
         r"[^A-Za-z0-9._-]+", "-", f"{snap.info.number or pid}-{names[0] if names and len(names) == 1 else 'set'}"
     )
-    job = registry(request).submit(svc, pid, names, f"{stem}.pdf")
+    user = getattr(request.state, "user", None)
+    job = registry(request).submit(
+        svc,
+        pid,
+        names,
+        f"{stem}.pdf",
+        project_number=snap.info.number or "",
+        started_by=getattr(user, "name", "") or "",
+    )
     if not htmx:
         return RedirectResponse(f"/projects/{pid}/pdf/jobs/{job.id}", status_code=303)
     ctx = _context(request, snap, job)
@@ -117,7 +143,11 @@ def status(
 
 @router.get(BASE + "/jobs/{job_id}/download", name="pdf_download", dependencies=READ)
 def download(request: Request, pid: int, job_id: str) -> Response:
+    reg = registry(request)
     job = _job(request, pid, job_id)
-    if job.state != "done" or job.path is None or not os.path.exists(job.path):
+    if job.state != "done" or job.path is None:
         raise NotFound(f"the PDF of job {job_id} is not ready")
-    return FileResponse(job.path, media_type="application/pdf", filename=job.filename)
+    path = Path(job.path).resolve()
+    if path.parent != reg.output_dir.resolve() or path.name != f"{job.id}.pdf" or not os.path.isfile(path):
+        raise NotFound(f"the PDF of job {job_id} is no longer on the server")
+    return FileResponse(path, media_type="application/pdf", filename=job.filename)
