@@ -153,6 +153,9 @@ class JobRegistry:
             return
         jobs: list[Job] = []
         for path in paths:
+            if not is_job_id(path.stem):  # a temporary file of an interrupted write, or not ours
+                log.info("ignored %s in the PDF sets folder (not a set record)", path)
+                continue
             try:
                 jobs.append(Job.from_record(read_record(path, self.output_dir), self.output_dir))
             except RecordError as exc:
@@ -235,6 +238,8 @@ class JobRegistry:
         except Exception as exc:  # reported on the page; the server log has the traceback
             log.exception("PDF job %s failed", job.id)
             job.message, job.state = f"the set could not be rendered ({type(exc).__name__})", "failed"
+        if job.state == "failed":  # no record: a PDF written before the failure would never be listed
+            pdf_path(self.output_dir, job.id).unlink(missing_ok=True)
         if job.state == "done":
             self._retain(job.project_id)
 

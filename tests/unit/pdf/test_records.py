@@ -158,3 +158,17 @@ def test_retention_leaves_other_files_alone(tmp_path: Path) -> None:
     JobRegistry(tmp_path, tmp_path / "cache", keep=1).shutdown()
     assert stray.read_bytes() == b"%PDF keep me"
     assert len(list(tmp_path.glob("*.json"))) == 1
+
+
+def test_temporary_and_foreign_json_files_are_ignored(tmp_path: Path, caplog: pytest.LogCaptureFixture) -> None:
+    good = _set(tmp_path)
+    (tmp_path / ".tmp-abc.json").write_text("{half a rec")  # an interrupted atomic write
+    (tmp_path / "notes.json").write_text("{}")
+    with caplog.at_level(logging.WARNING, logger="panelwright.pdf"):
+        reg = JobRegistry(tmp_path, tmp_path / "cache")
+    try:
+        assert [j.id for j in reg.finished_sets(1)] == [good.job_id]
+        assert not [r for r in caplog.records if r.levelno >= logging.WARNING]  # nothing to warn about
+        assert (tmp_path / "notes.json").exists()  # not ours: left alone
+    finally:
+        reg.shutdown()
