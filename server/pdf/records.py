@@ -3,7 +3,7 @@
 A background job (:mod:`server.pdf.jobs`) writes ``<job id>.pdf`` and then ``<job id>.json``
 (each atomically: a temporary file renamed into place), so a record exists only for a
 complete PDF.  After a restart the job registry reads the records back and lists the sets
-again.  Reading is strict: a record whose id, file name or size does not match, or whose PDF
+again.  Reading is strict: a record whose id, file name, size or SHA-256 does not match, or whose PDF
 lies outside the sets folder, raises :class:`RecordError` and the caller skips it.
 
 Record format (``format`` ``panelwright-pdf-set-1``)::
@@ -109,8 +109,9 @@ def _field(data: dict[str, Any], name: str, kind: type | tuple[type, ...]) -> An
     return value
 
 
-def read_record(path: Path, directory: Path) -> SetRecord:
-    """The record at ``path``, checked against the sets folder ``directory`` and its PDF."""
+def read_record(path: Path, directory: Path, *, check_hash: bool = True) -> SetRecord:
+    """The record at ``path``, checked against the sets folder ``directory`` and its PDF (its size
+    and, with ``check_hash``, its SHA-256: a PDF changed on disk is not offered as the set)."""
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
@@ -138,6 +139,14 @@ def read_record(path: Path, directory: Path) -> SetRecord:
         raise RecordError(f"its PDF {target.name} is missing") from None
     if actual != size_bytes:
         raise RecordError(f"its PDF {target.name} has {actual} bytes, the record says {size_bytes}")
+    sha256 = _field(data, "sha256", str)
+    if check_hash:
+        try:
+            digest = sha256_hex(target.read_bytes())
+        except OSError as exc:
+            raise RecordError(f"its PDF {target.name} cannot be read ({exc})") from None
+        if digest != sha256:
+            raise RecordError(f"its PDF {target.name} does not match the record's SHA-256")
     return SetRecord(
         job_id=job_id,
         project_id=_field(data, "project_id", int),
@@ -154,5 +163,5 @@ def read_record(path: Path, directory: Path) -> SetRecord:
         file=file,
         download_name=download_name,
         size_bytes=size_bytes,
-        sha256=_field(data, "sha256", str),
+        sha256=sha256,
     )

@@ -99,6 +99,15 @@ def test_malformed_records_are_refused(tmp_path: Path, changes: dict, message: s
         read_record(path, tmp_path)
 
 
+def test_a_changed_pdf_is_refused(tmp_path: Path) -> None:
+    rec = _set(tmp_path)
+    data = (tmp_path / rec.file).read_bytes()
+    (tmp_path / rec.file).write_bytes(data[:-1] + b"X")  # same size, other content
+    with pytest.raises(RecordError, match="SHA-256"):
+        read_record(record_path(tmp_path, rec.job_id), tmp_path)
+    assert read_record(record_path(tmp_path, rec.job_id), tmp_path, check_hash=False).job_id == rec.job_id
+
+
 def test_unreadable_record_and_missing_pdf_are_refused(tmp_path: Path) -> None:
     rec = _set(tmp_path)
     path = record_path(tmp_path, rec.job_id)
