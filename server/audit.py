@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from datetime import UTC, date, datetime, time, timedelta
 from typing import Any
 
-from sqlalchemy import event, insert, inspect, select
+from sqlalchemy import event, func, insert, inspect, or_, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from server.db import models as db
@@ -290,12 +290,18 @@ class AuditLine:
 
 @dataclass(frozen=True)
 class AuditFilter:
-    """History filters: by user, panel tag and date range (inclusive days, UTC)."""
+    """History filters: by user, panel tag, kind of thing changed and date range (inclusive days, UTC)."""
 
     user: str = ""
     panel: str = ""
     since: date | None = None
     until: date | None = None
+    kind: str = ""  # "user", "firm settings" …: the target's first words (see SITE_KINDS)
+
+
+#: The kinds of change that belong to no project, as the site-wide history offers them: a row's
+#: target starts with its kind ("user jules", "firm settings").
+SITE_KINDS: tuple[str, ...] = (_KINDS[db.User], _KINDS[db.FirmSettings])
 
 
 def parse_day(text: str | None, name: str) -> date | None:
@@ -308,17 +314,25 @@ def parse_day(text: str | None, name: str) -> date | None:
         raise ValueError(f"{name}: {text!r} is not a date (write YYYY-MM-DD)") from None
 
 
-def events(
-    sessions: sessionmaker[Session],
-    *,
-    project_id: int | None,
-    filt: AuditFilter = AuditFilter(),
-    limit: int = 500,
-    target: str | None = None,
-) -> list[AuditLine]:
-    """Newest first; ``target`` keeps only the changes of one thing (e.g. "firm settings")."""
-    stmt = select(db.AuditEvent).order_by(db.AuditEvent.at.desc(), db.AuditEvent.id.desc())
-    if project_id is not None:
+def parse_filter(
+    user: str, panel: str, since: str, until: str, kind: str = "", *, kinds: tuple[str, ...] = ()
+) -> tuple[AuditFilter, str]:
+    """The history filters as typed in a query string, and a message naming the field when one is
+    wrong (then the dates and kind are dropped, so the page still lists something)."""
+    user, panel, kind = user.strip(), panel.strip(), kind.strip()
+    try:
+        if kind and kind not in kinds:
+            raise ValueError(f"what: {kind!r} is not one of " + ", ".join(kinds or ("(none here)",)))
+        return AuditFilter(user, panel, parse_day(since, "from"), parse_day(until, "to"), kind), ""
+    except ValueError as exc:
+        return AuditFilter(user, panel), str(exc)
+
+
+def _select(stmt: Any, *, project_id: int | None, site: bool, filt: AuditFilter, target: str | None) -> Any:
+    """``stmt`` narrowed to one project (or, ``site``, to the rows of no project) and the filters."""
+    if site:
+        stmt = stmt.where(db.AuditEvent.project_id.is_(None))
+    elif project_id is not None:
         stmt = stmt.where(db.AuditEvent.project_id == project_id)
     if target is not None:
         stmt = stmt.where(db.AuditEvent.target == target)
@@ -326,12 +340,40 @@ def events(
         stmt = stmt.where(db.AuditEvent.user_name == filt.user)
     if filt.panel:
         stmt = stmt.where(db.AuditEvent.panel_tag == filt.panel)
+    if filt.kind:
+        # kinds are our own fixed words (no LIKE wildcards in them)
+        stmt = stmt.where(or_(db.AuditEvent.target == filt.kind, db.AuditEvent.target.like(filt.kind + " %")))
     if filt.since:
         stmt = stmt.where(db.AuditEvent.at >= datetime.combine(filt.since, time.min, UTC))
     if filt.until:
         stmt = stmt.where(db.AuditEvent.at < datetime.combine(filt.until + timedelta(days=1), time.min, UTC))
+    return stmt
+
+
+def events(
+    sessions: sessionmaker[Session],
+    *,
+    project_id: int | None,
+    filt: AuditFilter = AuditFilter(),
+    limit: int = 500,
+    target: str | None = None,
+    site: bool = False,
+    offset: int = 0,
+) -> list[AuditLine]:
+    """Newest first; ``target`` keeps only the changes of one thing (e.g. "firm settings"); ``site``
+    keeps only the changes that belong to no project (accounts, firm settings); ``offset`` skips
+    that many (a page of the list)."""
+    stmt = _select(
+        select(db.AuditEvent).order_by(db.AuditEvent.at.desc(), db.AuditEvent.id.desc()),
+        project_id=project_id,
+        site=site,
+        filt=filt,
+        target=target,
+    )
     if limit:
         stmt = stmt.limit(limit)
+    if offset:
+        stmt = stmt.offset(offset)
     with sessions() as s:
         return [
             AuditLine(
@@ -349,16 +391,28 @@ def events(
         ]
 
 
-def users_in(sessions: sessionmaker[Session], *, project_id: int) -> list[str]:
+def count(
+    sessions: sessionmaker[Session], *, project_id: int | None, filt: AuditFilter = AuditFilter(), site: bool = False
+) -> int:
+    """How many rows :func:`events` would list without a limit (for "page 2 of 7")."""
+    stmt = _select(
+        select(func.count()).select_from(db.AuditEvent), project_id=project_id, site=site, filt=filt, target=None
+    )
     with sessions() as s:
-        return list(
-            s.scalars(
-                select(db.AuditEvent.user_name)
-                .where(db.AuditEvent.project_id == project_id)
-                .distinct()
-                .order_by(db.AuditEvent.user_name)
-            )
-        )
+        return int(s.scalar(stmt) or 0)
+
+
+def users_in(sessions: sessionmaker[Session], *, project_id: int | None, site: bool = False) -> list[str]:
+    """Who made the changes of one project (or, ``site``, of no project): the user filter's choices."""
+    stmt = _select(
+        select(db.AuditEvent.user_name).distinct().order_by(db.AuditEvent.user_name),
+        project_id=project_id,
+        site=site,
+        filt=AuditFilter(),
+        target=None,
+    )
+    with sessions() as s:
+        return list(s.scalars(stmt))
 
 
 def to_csv(lines: list[AuditLine]) -> str:
@@ -388,8 +442,6 @@ def _cell(text: str) -> str:
 
 def newest_change(sessions: sessionmaker[Session]) -> datetime | None:
     """When the database last changed (newest audit row or project update), for restore's check."""
-    from sqlalchemy import func
-
     with sessions() as s:
         a = s.scalar(select(func.max(db.AuditEvent.at)))
         p = s.scalar(select(func.max(db.Project.updated_at)))
