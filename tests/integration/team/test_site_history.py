@@ -78,6 +78,12 @@ def test_account_and_firm_changes_are_listed_with_who_and_before_after(app, admi
         assert "mireille" not in text and "firm settings" not in text
     # project rows are not on the site history
     assert "create project" not in table
+    # a removal keeps the account's name and role as "before"
+    assert admin.post("/admin/users/mireille", data={"action": "remove"}, follow_redirects=False).status_code == 303
+    removed = audit.events(app.state.services.sessions, project_id=None, site=True, limit=1)[0]
+    assert (removed.user, removed.action, removed.target) == ("odile", "delete", "user mireille")
+    assert removed.before == {"name": "mireille", "role": "reviewer"} and removed.after is None
+    assert "delete user mireille" in admin.get("/admin/history").text
 
 
 def test_no_password_material_on_the_page_or_in_the_csv(app, admin):
@@ -172,3 +178,13 @@ def test_linked_from_the_admin_pages_and_the_user_menu(admin):
     assert 'href="/admin/history" id="site-history-link"' in admin.get("/").text
     assert 'href="/admin/history?what=user"' in admin.get("/admin/users").text
     assert 'href="/admin/history?what=firm+settings"' in admin.get("/admin/settings").text
+
+
+def test_a_change_made_from_the_shell_is_listed_under_its_cli_name(app, admin):
+    from server.auth.accounts import set_role
+
+    sign_in(TestClient(app), app, "reviewer", "gaspard")
+    set_role(app.state.services.sessions, name="gaspard", role="engineer")  # what `panelwright user role` calls
+    row = _rows(admin.get("/admin/history.csv?what=user").text)[0]
+    assert row["user"] == audit.ACTOR.get() and row["user"].startswith("cli")
+    assert (row["action"], row["target"], json.loads(row["after"])) == ("update", "user gaspard", {"role": "engineer"})
