@@ -217,3 +217,23 @@ def test_retention_keeps_the_newest_sets(db_url, demo_data, tmp_path):
         assert any(p.suffix == ".pdf" for p in (tmp_path / "pdf-cache").glob("??/*.pdf"))  # sheet cache untouched
     finally:
         _close(new_app, new_client)
+
+
+def test_a_set_removed_while_its_download_starts_is_not_found(client, demo_id, monkeypatch):
+    # Retention may delete a set between the existence check and the answer: a 404, never a 500.
+    link, pdf = _run_job(client, demo_id, "LP-1")
+    r = client.get(link)
+    assert r.headers["content-disposition"].startswith("attachment;") and r.content == pdf
+    assert r.headers["content-length"] == str(len(pdf))
+    import server.web.routes.pdf as pdf_routes
+
+    real_open = pdf_routes.Path.open
+
+    def vanished(self, *args, **kwargs):
+        if self.suffix == ".pdf":
+            raise FileNotFoundError(str(self))
+        return real_open(self, *args, **kwargs)
+
+    monkeypatch.setattr(pdf_routes.Path, "open", vanished)
+    r = client.get(link)
+    assert r.status_code == 404 and "no longer on the server" in r.text

@@ -16,9 +16,10 @@ import re
 import threading
 from dataclasses import dataclass
 from pathlib import Path
+from urllib.parse import quote
 
 from fastapi import APIRouter, Depends, Form, Request
-from fastapi.responses import FileResponse, RedirectResponse, Response
+from fastapi.responses import RedirectResponse, Response, StreamingResponse
 
 from server.auth.permissions import Require
 from server.auth.roles import Permission
@@ -150,4 +151,29 @@ def download(request: Request, pid: int, job_id: str) -> Response:
     path = Path(job.path).resolve()
     if path.parent != reg.output_dir.resolve() or path.name != f"{job.id}.pdf" or not os.path.isfile(path):
         raise NotFound(f"the PDF of job {job_id} is no longer on the server")
-    return FileResponse(path, media_type="application/pdf", filename=job.filename)
+    try:
+        # Opened before the answer starts: retention may delete the file meanwhile, and an open
+        # file stays readable after its name is removed (a plain path would fail mid-answer).
+        handle = path.open("rb")
+    except FileNotFoundError:
+        raise NotFound(f"the PDF of job {job_id} is no longer on the server") from None
+    size = os.fstat(handle.fileno()).st_size
+    return StreamingResponse(
+        _chunks(handle),
+        media_type="application/pdf",
+        headers={"Content-Disposition": _attachment(job.filename), "Content-Length": str(size)},
+    )
+
+
+def _chunks(handle, size: int = 1 << 16):
+    with handle:
+        while chunk := handle.read(size):
+            yield chunk
+
+
+def _attachment(filename: str) -> str:
+    """Content-Disposition for a download, with the RFC 6266/5987 form for non-ASCII names."""
+    quoted = quote(filename)
+    if quoted == filename:
+        return f'attachment; filename="{filename}"'
+    return f"attachment; filename*=utf-8''{quoted}"
