@@ -1114,49 +1114,54 @@ class Calculator:
             return
         node.bus_changed = True
         node.cum_vd = total_vd
-        if prev is not None and z == node.z_bus and prev[3] is not None:
+        same_z = prev is not None and z == node.z_bus
+        if same_z and prev[3] is not None:
             fault_ka = prev[2]
         else:
             fault = _faults.bolted_fault_ka(z, node.spec)
             fault_ka = None if math.isinf(fault) else fault
         node.z_bus = z
-        node.final_key = (local, total_vd, fault_ka, True)
-        extra: list[CalcWarning] = []
         tag = node.tag
-        if feeder is not None and total_vd > limit + 1e-9:
-            extra.append(
-                CalcWarning(
-                    WarningCode.VOLTAGE_DROP_TOTAL,
-                    f"{tag}: cumulative voltage drop {total_vd:.2f} % from the source exceeds {limit:g} % "
-                    f"({self.code.value} {self._vd_note} recommendation for feeder and branch circuit)",
-                    tag,
-                )
-            )
+        vd_over = feeder is not None and total_vd > limit + 1e-9
+        node_key = (local, total_vd, fault_ka, True, vd_over)
         new_feeder = _evolve(feeder, cumulative_voltage_drop_pct=total_vd) if feeder is not None else None
-        if node.kind == "panel":
-            panel: Panel = node.element  # type: ignore[assignment]
-            if panel.sccr_ka is not None and fault_ka is not None and fault_ka > panel.sccr_ka + 1e-9:
+        if prev is not None and prev[0] is local and prev[2] == fault_ka and not vd_over and not prev[4]:
+            # Same local result and fault, and no cumulative-drop warning before or now (its text
+            # carries the value): the warnings are the ones this node already has.
+            warnings = node.final_warnings  # type: ignore[assignment]
+        else:
+            extra: list[CalcWarning] = []
+            if vd_over:
                 extra.append(
                     CalcWarning(
-                        WarningCode.SCCR_LOW,
-                        f"{tag}: available fault current {fault_ka:.1f} kA exceeds the panel's "
-                        f"{panel.sccr_ka:g} kA short-circuit current rating ({self.code.value} 110.9 / 110.10)",
+                        WarningCode.VOLTAGE_DROP_TOTAL,
+                        f"{tag}: cumulative voltage drop {total_vd:.2f} % from the source exceeds {limit:g} % "
+                        f"({self.code.value} {self._vd_note} recommendation for feeder and branch circuit)",
                         tag,
-                        None,
-                        Severity.ERROR,
                     )
                 )
+            if node.kind == "panel":
+                panel: Panel = node.element  # type: ignore[assignment]
+                if panel.sccr_ka is not None and fault_ka is not None and fault_ka > panel.sccr_ka + 1e-9:
+                    extra.append(
+                        CalcWarning(
+                            WarningCode.SCCR_LOW,
+                            f"{tag}: available fault current {fault_ka:.1f} kA exceeds the panel's "
+                            f"{panel.sccr_ka:g} kA short-circuit current rating ({self.code.value} 110.9 / 110.10)",
+                            tag,
+                            None,
+                            Severity.ERROR,
+                        )
+                    )
             warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
+        if node.kind == "panel":
+            x_over_r = node.final.fault_x_over_r if same_z else _faults.x_over_r(z)  # type: ignore[union-attr]
             node.final = _evolve(
-                local.result,
-                feeder=new_feeder,
-                fault_ka=fault_ka,
-                fault_x_over_r=_faults.x_over_r(z),
-                warnings=warnings,
+                local.result, feeder=new_feeder, fault_ka=fault_ka, fault_x_over_r=x_over_r, warnings=warnings
             )
         else:
-            warnings = sort_warnings([*local.warnings, *extra]) if extra else local.warnings
             node.final = _evolve(local.result, feeder=new_feeder, secondary_fault_ka=fault_ka, warnings=warnings)
+        node.final_key = node_key
         self._reissued.append(node)
         if warnings is not node.final_warnings:
             node.final_warnings = warnings

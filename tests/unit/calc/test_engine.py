@@ -625,3 +625,33 @@ def test_sources_carry_no_warnings_of_their_own() -> None:
         result = compute_project(project)
         sources = {s.tag for s in project.sources}
         assert result.warnings and not [w for w in result.warnings if w.tag in sources]
+
+
+def test_incremental_updates_follow_the_cumulative_drop_warning_on_and_off() -> None:
+    # The top-down pass keeps a node's warnings when nothing they depend on moved; a growing load
+    # that pushes the cumulative drop over the limit (and back) must still match a full compute.
+    from seed_demo import DEMO_FILE
+    from server.calc.projectfile import load_project_file
+
+    project = load_project_file(DEMO_FILE)
+    lp1 = project.panel("LP-1")
+    assert lp1 is not None
+    long_run = replace(lp1, feeder=replace(lp1.feeder, length_ft=250.0, size="250"))  # given size: no upsizing
+    project = replace_panel(project, long_run)
+    calc = Calculator(project)
+    load = next(c for c in long_run.circuits if c.feeds is None and c.poles == 1 and c.va)
+    seen: set[tuple[bool, ...]] = set()
+    for va in (500.0, 12_000.0, 30_000.0, 60_000.0, 500.0, 60_000.0, 500.0):
+        panel = calc.project.panel("LP-1")
+        assert panel is not None
+        panel = replace(panel, circuits=tuple(replace(c, va=va) if c.slot == load.slot else c for c in panel.circuits))
+        inc = calc.update_panel(panel)
+        assert inc == compute_project(calc.project)
+        # LP-1K hangs below LP-1: its own result is unchanged, only the drop upstream of it moves.
+        seen.add(
+            tuple(
+                any(w.code == WarningCode.VOLTAGE_DROP_TOTAL and w.tag == t for w in inc.warnings)
+                for t in ("LP-1", "LP-1K")
+            )
+        )
+    assert {(True, True), (False, False)} <= seen  # the warning came and went, below as well
