@@ -21,6 +21,7 @@ from server.web.views import Page, page
 router = APIRouter(tags=["history"])
 READ = [Depends(Require(Permission.READ))]
 ADMIN = [Depends(Require(Permission.ADMIN))]
+#: Changes per page of a project's (or a panel's) history.
 LIMIT = 500
 #: Changes per page of the accounts-and-settings history.
 SITE_PAGE_SIZE = 100
@@ -69,14 +70,27 @@ def _csv_response(lines: list[audit.AuditLine], name: str) -> Response:
 
 
 def _render(
-    request: Request, svc, templates, pid: int, panel_scope: str, user: str, panel: str, since: str, until: str
+    request: Request,
+    svc,
+    templates,
+    pid: int,
+    panel_scope: str,
+    user: str,
+    panel: str,
+    since: str,
+    until: str,
+    page_no: str = "1",
 ) -> Response:
     snap = svc.snapshot(pid)
     if panel_scope and snap.model.panel(panel_scope) is None:
         raise NotFound(f"project {snap.info.number or pid} has no panel {panel_scope}")
     filt, error = _filter(user, panel_scope or panel, since, until)
-    lines = audit.events(svc.sessions, project_id=pid, filt=filt, limit=LIMIT)
-    query = request.url.query
+    number, page_error = _page_number(page_no)
+    error = error or page_error
+    total = audit.count(svc.sessions, project_id=pid, filt=filt)
+    pager = _pager(request, number, total, LIMIT)
+    lines = audit.events(svc.sessions, project_id=pid, filt=filt, limit=LIMIT, offset=(pager.number - 1) * LIMIT)
+    query = urlencode([(k, v) for k, v in request.query_params.multi_items() if k != "page"])
     base = f"/projects/{pid}/panels/{panel_scope}/history.csv" if panel_scope else f"/projects/{pid}/history.csv"
     title = f"History of panel {panel_scope}" if panel_scope else "History"
     ctx = HistoryContext(
@@ -89,6 +103,7 @@ def _render(
         base + (f"?{query}" if query else ""),
         LIMIT,
         panel_scope,
+        pager=pager,
     )
     return templates.TemplateResponse(
         request, "history/list.html", {"ctx": ctx, "page": ctx.page}, status_code=422 if error else 200
@@ -115,8 +130,9 @@ def project_history(
     panel: str = "",
     since: str = "",
     until: str = "",
+    page_no: str = Query("1", alias="page"),
 ) -> Response:
-    return _render(request, svc, templates, pid, "", user, panel, since, until)
+    return _render(request, svc, templates, pid, "", user, panel, since, until, page_no)
 
 
 @router.get("/projects/{pid}/history.csv", name="history_csv", dependencies=READ)
@@ -136,8 +152,9 @@ def panel_history(
     user: str = "",
     since: str = "",
     until: str = "",
+    page_no: str = Query("1", alias="page"),
 ) -> Response:
-    return _render(request, svc, templates, pid, tag, user, "", since, until)
+    return _render(request, svc, templates, pid, tag, user, "", since, until, page_no)
 
 
 @router.get("/projects/{pid}/panels/{tag}/history.csv", name="panel_history_csv", dependencies=READ)
@@ -162,6 +179,19 @@ def _site_filter(user: str, what: str, since: str, until: str) -> tuple[audit.Au
     return audit.parse_filter(user, "", since, until, what, kinds=audit.SITE_KINDS)
 
 
+def _pager(request: Request, number: int, total: int, size: int) -> Pager:
+    """Page ``number`` (kept within the pages there are) of ``total`` rows, ``size`` a page."""
+    pages = max(1, -(-total // size))
+    number = min(number, pages)
+    return Pager(
+        number,
+        pages,
+        total,
+        _with_page(request, number - 1) if number > 1 else "",
+        _with_page(request, number + 1) if number < pages else "",
+    )
+
+
 def _with_page(request: Request, number: int) -> str:
     query = [(k, v) for k, v in request.query_params.multi_items() if k != "page"] + [("page", str(number))]
     return f"{request.url.path}?{urlencode(query)}"
@@ -183,21 +213,14 @@ def site_history(
     number, page_error = _page_number(page_no)
     error = error or page_error
     total = audit.count(svc.sessions, project_id=None, site=True, filt=filt)
-    pages = max(1, -(-total // SITE_PAGE_SIZE))
+    pager = _pager(request, number, total, SITE_PAGE_SIZE)
     lines = audit.events(
         svc.sessions,
         project_id=None,
         site=True,
         filt=filt,
         limit=SITE_PAGE_SIZE,
-        offset=(number - 1) * SITE_PAGE_SIZE,
-    )
-    pager = Pager(
-        number,
-        pages,
-        total,
-        _with_page(request, number - 1) if number > 1 else "",
-        _with_page(request, number + 1) if number < pages else "",
+        offset=(pager.number - 1) * SITE_PAGE_SIZE,
     )
     query = urlencode([(k, v) for k, v in request.query_params.multi_items() if k != "page"])
     ctx = HistoryContext(

@@ -101,3 +101,32 @@ def test_account_changes_are_audited_without_the_hash(app):
     assert [e.action for e in lines] == ["update", "create"]
     assert lines[0].after == {"password": "changed"}
     assert "argon2" not in json.dumps([e.before for e in lines] + [e.after for e in lines])
+
+
+def test_project_history_pages_through_every_change(app, client, demo_id, monkeypatch):
+    # A busy project's history was cut at the newest 500; now every change is a page away.
+    import re
+
+    from server.web.routes import history
+
+    monkeypatch.setattr(history, "LIMIT", 3)
+    tag, c = _load(app, demo_id)
+    for va in (1111, 2222, 3333, 4444, 5555):
+        r = client.post(
+            f"/projects/{demo_id}/panels/{tag}/circuits/{c.slot}",
+            data={"va": str(va)},
+            headers={"HX-Request": "true", "HX-Trigger-Name": "va"},
+        )
+        assert r.status_code == 200
+    total = len(audit.events(app.state.services.sessions, project_id=demo_id, limit=0))
+    first = client.get(f"/projects/{demo_id}/history?user=engineer")
+    assert first.status_code == 200 and "Page 1 of" in first.text and 'rel="next"' in first.text
+    assert "5555" in first.text and "1111" not in first.text
+    older = re.search(r'href="([^"]+)" rel="next"', first.text).group(1).replace("&amp;", "&")
+    assert "user=engineer" in older and "page=2" in older  # the filters stay with the pages
+    second = client.get(older)
+    assert "Page 2 of" in second.text and "2222" in second.text and "5555" not in second.text
+    assert client.get(f"/projects/{demo_id}/history?page=0").status_code == 422
+    assert f"({total} changes" in client.get(f"/projects/{demo_id}/history").text
+    # A panel's own history pages the same way.
+    assert "Page 1 of 2" in client.get(f"/projects/{demo_id}/panels/{tag}/history").text
