@@ -18,11 +18,9 @@ from __future__ import annotations
 
 import random
 import re
-import socket
 import statistics
 import sys
 import tempfile
-import threading
 import time
 from pathlib import Path
 
@@ -34,16 +32,11 @@ from server.db import migrate
 from server.web.app import create_app
 from server.web.serving import prepare_process
 from tests.benchmarks.generate import generate_project
+from tests.helpers import thread_server
 
 EDITS = 1000  # a p95 from 300 pairs swung by ±0.1 in the ratio between runs; 1000 steadies it
 WARMUP = 20
 SEED = 7
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 def _pct(values: list[float], q: float) -> float:
@@ -53,8 +46,6 @@ def _pct(values: list[float], q: float) -> float:
 
 
 def run(edits: int = EDITS) -> dict[str, float]:
-    import uvicorn
-
     with tempfile.TemporaryDirectory() as tmp:
         url = f"sqlite:///{Path(tmp) / 'bench.db'}"
         migrate.upgrade(url)
@@ -81,19 +72,10 @@ def run(edits: int = EDITS) -> dict[str, float]:
         ]
         floor_id = svc.first_circuit_id(pid)
 
-        port = _free_port()
-        server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
-        thread = threading.Thread(target=server.run, daemon=True)
-        thread.start()
-        deadline = time.monotonic() + 30
-        while not server.started:
-            if time.monotonic() > deadline:
-                raise SystemExit("the benchmark server did not start")
-            time.sleep(0.05)
         edit_ms: list[float] = []
         floor_ms: list[float] = []
         try:
-            with httpx.Client(base_url=f"http://127.0.0.1:{port}", timeout=60) as client:
+            with thread_server(app, start_timeout_s=30) as base, httpx.Client(base_url=base, timeout=60) as client:
                 headers = {"HX-Request": "true", "HX-Trigger-Name": "va"}
                 # Where the app guards writes with a per-session token, send it as the page's htmx does.
                 page = client.get(f"/projects/{pid}/panels/{targets[0][0]}").text
@@ -120,8 +102,6 @@ def run(edits: int = EDITS) -> dict[str, float]:
                         edit_ms.append(e)
                         floor_ms.append(f)
         finally:
-            server.should_exit = True
-            thread.join(timeout=10)
             app.state.engine.dispose()
         after = svc.snapshot(pid)
         assert after.data_version == snap.data_version + edits + WARMUP  # every edit was written

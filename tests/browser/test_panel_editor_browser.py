@@ -10,9 +10,6 @@ from __future__ import annotations
 
 import json
 import shutil
-import socket
-import threading
-import time
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -21,7 +18,7 @@ import pytest
 from server.config import Settings
 from server.db import migrate
 from server.web.app import create_app
-from tests.helpers import DEMO_FILE
+from tests.helpers import DEMO_FILE, thread_server
 
 pytestmark = pytest.mark.browser
 
@@ -38,36 +35,18 @@ CHROMIUM_ARGS = [
 ]
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 @pytest.fixture
 def live_app(tmp_path: Path) -> Iterator[tuple[str, object, int]]:
     """(base URL, app, demo project id) of a server on 127.0.0.1, stopped after the test."""
-    import uvicorn
-
     url = f"sqlite:///{tmp_path / 'pw.db'}"
     migrate.upgrade(url)
     # single_user: no sign-in on a loopback-only test server (ignored where team use is absent).
     app = create_app(Settings(database_url=url, single_user=True))
     pid = app.state.services.import_file(json.loads(DEMO_FILE.read_text(encoding="utf-8"))).project_id
-    port = _free_port()
-    server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    deadline = time.monotonic() + 15
-    while not server.started:
-        if time.monotonic() > deadline or not thread.is_alive():
-            pytest.fail("the test server did not start within 15 s")
-        time.sleep(0.05)
     try:
-        yield f"http://127.0.0.1:{port}", app, pid
+        with thread_server(app) as base:
+            yield base, app, pid
     finally:
-        server.should_exit = True
-        thread.join(timeout=10)
         app.state.engine.dispose()
 
 

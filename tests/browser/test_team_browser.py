@@ -9,8 +9,6 @@ separate browser contexts (two cookie jars, two people).
 from __future__ import annotations
 
 import json
-import threading
-import time
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -20,8 +18,8 @@ from server.auth.accounts import add_user
 from server.config import Settings
 from server.db import migrate
 from server.web.app import create_app
-from tests.browser.test_panel_editor_browser import CHROMIUM, CHROMIUM_ARGS, _free_port, _playwright
-from tests.helpers import DEMO_FILE
+from tests.browser.test_panel_editor_browser import CHROMIUM, CHROMIUM_ARGS, _playwright
+from tests.helpers import DEMO_FILE, thread_server
 
 pytestmark = pytest.mark.browser
 PASSWORD = "correct-horse-battery"
@@ -29,28 +27,16 @@ PASSWORD = "correct-horse-battery"
 
 @pytest.fixture
 def team_app(tmp_path: Path) -> Iterator[tuple[str, object, int]]:
-    import uvicorn
-
     url = f"sqlite:///{tmp_path / 'pw.db'}"
     migrate.upgrade(url)
     app = create_app(Settings(database_url=url))
     for name in ("alice", "bruno"):
         add_user(app.state.services.sessions, name=name, role="engineer", password=PASSWORD)
     pid = app.state.services.import_file(json.loads(DEMO_FILE.read_text(encoding="utf-8"))).project_id
-    port = _free_port()
-    server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    deadline = time.monotonic() + 15
-    while not server.started:
-        if time.monotonic() > deadline or not thread.is_alive():
-            pytest.fail("the test server did not start within 15 s")
-        time.sleep(0.05)
     try:
-        yield f"http://127.0.0.1:{port}", app, pid
+        with thread_server(app) as base:
+            yield base, app, pid
     finally:
-        server.should_exit = True
-        thread.join(timeout=10)
         app.state.engine.dispose()
 
 
