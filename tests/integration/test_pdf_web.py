@@ -3,10 +3,9 @@ download, and read the sheet back; bad sheet names get a clear message."""
 
 from __future__ import annotations
 
-import time
-
 import pytest
 
+from tests.integration.pdfjobs import follow_job, private_pdf_cache  # noqa: F401 - autouse fixture
 from tests.integration.web import conftest as _web
 from tests.integration.web.conftest import htmx
 from tests.unit.pdf.pdftext import panel_pages, read_pages
@@ -20,23 +19,6 @@ demo_data = _web.demo_data
 demo_id = _web.demo_id
 
 
-@pytest.fixture(autouse=True)
-def _private_cache(tmp_path, monkeypatch):
-    monkeypatch.setenv("PANELWRIGHT_PDF_CACHE_DIR", str(tmp_path / "pdf-cache"))
-
-
-def _follow(client, url: str, timeout_s: float = 180.0) -> str:
-    deadline = time.monotonic() + timeout_s
-    while time.monotonic() < deadline:
-        r = client.get(url, headers=htmx())
-        assert r.status_code == 200, r.text
-        if 'data-state="done"' in r.text or 'data-state="failed"' in r.text:
-            return r.text
-        assert 'hx-trigger="every 500ms"' in r.text  # still polling
-        time.sleep(0.25)
-    raise AssertionError("the PDF job did not finish in time")
-
-
 def test_panel_button_renders_that_panel(client, demo_id):
     page = client.get(f"/projects/{demo_id}/pdf")
     assert page.status_code == 200
@@ -46,7 +28,7 @@ def test_panel_button_renders_that_panel(client, demo_id):
     assert 'hx-trigger="every 500ms"' in r.text or 'data-state="done"' in r.text
     job_url = r.text.split('hx-get="')[1].split('"')[0] if "hx-get" in r.text else None
     assert job_url is not None
-    final = _follow(client, job_url)
+    final = follow_job(client, job_url)
     assert 'data-state="done"' in final, final
     link = final.split('class="pdf-download"')[0].rsplit('href="', 1)[1].split('"')[0]
     pdf = client.get(link)
@@ -62,7 +44,7 @@ def test_whole_set_without_htmx_redirects_to_the_job_page(client, demo_id):
     assert r.status_code == 303
     page = client.get(r.headers["location"])
     assert page.status_code == 200 and "PDF set" in page.text
-    final = _follow(client, r.headers["location"])
+    final = follow_job(client, r.headers["location"])
     assert 'data-state="done"' in final
 
 
@@ -72,7 +54,7 @@ def test_a_reviewer_may_print(app, client, demo_id):
     sign_in(client, app, "reviewer")
     r = client.post(f"/projects/{demo_id}/pdf", data={"sheets": "T-1"}, headers=htmx())
     assert r.status_code == 200, r.text
-    final = _follow(client, r.text.split('hx-get="')[1].split('"')[0])
+    final = follow_job(client, r.text.split('hx-get="')[1].split('"')[0])
     assert 'data-state="done"' in final
 
 
@@ -94,7 +76,7 @@ def _run_job(client, pid: int, sheets: str) -> tuple[str, bytes]:
     """Start a job for ``sheets``, wait for it, download it: (download URL, PDF bytes)."""
     r = client.post(f"/projects/{pid}/pdf", data={"sheets": sheets}, headers=htmx())
     assert r.status_code == 200, r.text
-    final = _follow(client, r.text.split('hx-get="')[1].split('"')[0])
+    final = follow_job(client, r.text.split('hx-get="')[1].split('"')[0])
     assert 'data-state="done"' in final, final
     link = final.split('class="pdf-download"')[0].rsplit('href="', 1)[1].split('"')[0]
     pdf = client.get(link)

@@ -4,29 +4,9 @@ that renders that panel's schedule."""
 
 from __future__ import annotations
 
-import time
-
-import pytest
-
-from tests.integration.web.conftest import htmx
+from tests.integration.pdfjobs import follow_job, private_pdf_cache  # noqa: F401 - autouse fixture
 from tests.integration.web.html import parse
 from tests.unit.pdf.pdftext import panel_pages, read_pages
-
-
-@pytest.fixture(autouse=True)
-def _private_cache(tmp_path, monkeypatch):
-    monkeypatch.setenv("PANELWRIGHT_PDF_CACHE_DIR", str(tmp_path / "pdf-cache"))
-
-
-def _follow(client, url: str, timeout_s: float = 180.0) -> str:
-    deadline = time.monotonic() + timeout_s
-    while time.monotonic() < deadline:
-        r = client.get(url, headers=htmx())
-        assert r.status_code == 200, r.text
-        if 'data-state="done"' in r.text or 'data-state="failed"' in r.text:
-            return r.text
-        time.sleep(0.25)
-    raise AssertionError("the PDF job did not finish in time")
 
 
 def test_every_project_page_links_the_pdf_set(client, demo_id):
@@ -63,7 +43,7 @@ def test_the_panel_page_button_starts_a_job_for_that_panel(client, demo_id):
     finally:
         client.headers["X-CSRF-Token"] = header
     assert started.status_code == 303, started.text
-    final = _follow(client, started.headers["location"])
+    final = follow_job(client, started.headers["location"])
     assert 'data-state="done"' in final, final
     link = final.split('class="pdf-download"')[0].rsplit('href="', 1)[1].split('"')[0]
     pdf = client.get(link)
