@@ -41,9 +41,9 @@ import hashlib
 import json
 import logging
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
-from typing import Any
+from typing import Any, TypeVar
 
 from sqlalchemy import select, update
 from sqlalchemy.orm import Session
@@ -69,6 +69,7 @@ from server.repo import projects as repo
 from server.services import Conflict, EditRejected, NotFound, Services, Snapshot
 
 log = logging.getLogger("panelwright.balancing")
+T = TypeVar("T")
 
 #: Audit actions (the ``action`` column holds at most 20 characters).
 ACTION_APPLY = "balance"
@@ -201,16 +202,21 @@ def _panel(snap: Snapshot, tag: str) -> Panel:
     return panel
 
 
-def preview(svc: Services, project_id: int, tag: str, options: BalanceOptions) -> BalancePreview:
-    """Run the balancer on panel ``tag`` as stored now.  Writes nothing."""
-    snap = svc.snapshot(project_id)
-    current = _panel(snap, tag)
+def _solved(tag: str, solve: Callable[[], T]) -> T:
+    """Run a balancer; its refusals become an :class:`EditRejected` naming ``tag``."""
     try:
-        proposal = balance_panel_in_project(snap.model, tag, options)
+        return solve()
     except ProjectFileError as exc:
         raise EditRejected(exc.problems) from None
     except (CalcError, ValueError) as exc:
         raise EditRejected([Problem(f"cannot balance: {exc}", tag)]) from None
+
+
+def preview(svc: Services, project_id: int, tag: str, options: BalanceOptions) -> BalancePreview:
+    """Run the balancer on panel ``tag`` as stored now.  Writes nothing."""
+    snap = svc.snapshot(project_id)
+    current = _panel(snap, tag)
+    proposal = _solved(tag, lambda: balance_panel_in_project(snap.model, tag, options))
     return BalancePreview(snap, tag, current, proposal, panel_fingerprint(current))
 
 
@@ -512,12 +518,7 @@ def preview_secondary(svc: Services, project_id: int, tag: str, options: Balance
     """Run the transformer balancer on ``tag``'s secondary as stored now.  Writes nothing."""
     snap = svc.snapshot(project_id)
     tags = _transformer_tags(snap, tag)
-    try:
-        proposal = balance_transformer(snap.model, tag, options)
-    except ProjectFileError as exc:
-        raise EditRejected(exc.problems) from None
-    except (CalcError, ValueError) as exc:
-        raise EditRejected([Problem(f"cannot balance: {exc}", tag)]) from None
+    proposal = _solved(tag, lambda: balance_transformer(snap.model, tag, options))
     return SecondaryPreview(snap, tag, proposal, secondary_fingerprint(snap.model, tags))
 
 
