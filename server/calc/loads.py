@@ -307,6 +307,11 @@ def reflect_triplens(
     return {p: v / n for p, v in line_i3.items()}, neutral_i3 / n
 
 
+def va_from_kva(load_kva: float) -> float:
+    """Volt-amperes from kilovolt-amperes (a schedule's kVA, or kW read as kVA at unity power factor)."""
+    return load_kva * 1000.0
+
+
 def va_from_amps(current_a: float, poles: int, spec: SystemSpec) -> float:
     """Apparent power of a load given its current, at the nominal voltages of the system string.
 

@@ -27,7 +27,7 @@ from dataclasses import dataclass, field, replace
 from enum import StrEnum
 
 from server.calc.errors import CalcError, Problem
-from server.calc.loads import va_from_amps
+from server.calc.loads import va_from_amps, va_from_kva
 from server.calc.model import Category, Circuit, Panel, Project
 from server.calc.projectfile import check_panel, check_topology, parse_circuit
 from server.calc.systems import SYSTEMS, SystemSpec, breaker_phases
@@ -585,7 +585,7 @@ def _make_circuit(
     if w.load is not None:
         value, unit, col = w.load
         if unit == Role.LOAD_KVA:
-            w.raw["va"] = round(value * 1000.0, 6)
+            w.raw["va"] = round(va_from_kva(value), 6)
         elif unit == Role.LOAD_AMPS:
             if spec is not None:
                 va = amps_to_va(value, poles_for_load, spec)
@@ -1040,7 +1040,7 @@ def _merge_continuations(h: _Half) -> None:
                 )
             )
         return
-    total = sum(v * 1000.0 if unit == Role.LOAD_KVA else v for _, (v, unit, _c) in loads)
+    total = sum(va_from_kva(v) if unit == Role.LOAD_KVA else v for _, (v, unit, _c) in loads)
     w.load = (total, Role.LOAD_VA, col)
     if len(loads) > 1:
         rows = ", ".join(str(r + 1) for r, _ in loads)

@@ -24,6 +24,7 @@ from server.calc.loads import (
     reflect_triplens,
     triplen_rotation,
     va_from_amps,
+    va_from_kva,
 )
 from server.calc.systems import SQRT3, SYSTEMS
 from tests.helpers import assert_close
@@ -254,3 +255,9 @@ def test_va_from_amps_uses_nominal_voltages(system, poles, amps, expected_va) ->
 def test_va_from_amps_refuses_a_one_pole_load_without_a_neutral() -> None:
     with pytest.raises(CalcError, match="no neutral"):
         va_from_amps(10.0, 1, SYSTEMS["480 3PH 3W"])
+
+
+def test_va_from_kva() -> None:
+    # 1 kVA = 1000 VA (SI prefix); a schedule's kW column is read as kVA at unity power factor.
+    assert va_from_kva(12.5) == 12_500.0
+    assert va_from_kva(0.0) == 0.0
