@@ -95,6 +95,15 @@ def rating(value: float | int | None, unit: str = "A") -> str:
     return f"{number} {unit}"
 
 
+def landing(rotation: int | None) -> str:
+    """A panel's feeder landing in the installer's words: 1 → "A→B, B→C, C→A"; 0 or None → ""."""
+    if not rotation:
+        return ""
+    from server.calc.balance import rotation_landing  # the one wording (screens, export, report)
+
+    return rotation_landing(rotation)
+
+
 def text(value: Any) -> str:
     """Free text, or an em dash when empty."""
     if value is None:
@@ -116,6 +125,7 @@ FILTERS: Mapping[str, Any] = {
     "feet": feet,
     "rating": rating,
     "text": text,
+    "landing": landing,
 }
 
 

@@ -13,7 +13,6 @@ import json
 import click
 
 from server import formatting as fmt
-from server.calc.balance import rotation_landing
 from server.calc.engine import compute_project
 from server.calc.errors import CalcError, ProjectFileError
 from server.calc.model import Project
@@ -94,7 +93,7 @@ def _panel(p: PanelResult, feeder_rotation: int = 0) -> list[str]:
             f" (from source {fmt.pct(f.cumulative_voltage_drop_pct, 2)})"
         )
     if feeder_rotation:
-        lines.append(f"  landing       {rotation_landing(feeder_rotation)} (panel phase → terminal upstream)")
+        lines.append(f"  landing       {fmt.landing(feeder_rotation)} (panel phase → terminal upstream)")
     lines.append(f"  fault         {fmt.ka(p.fault_ka) if p.fault_ka is not None else 'infinite bus'}")
     lines.append(f"  spaces        {p.spaces_used} of {p.spaces_total} used")
     if p.warnings:

@@ -23,7 +23,7 @@ import re
 from collections.abc import Sequence
 from typing import Any
 
-from server.calc.balance import rotation_landing
+from server import formatting as fmt
 from server.calc.model import Circuit, Panel, Project
 from server.calc.results import ProjectResult
 from server.calc.systems import SYSTEMS, breaker_phases, breaker_slots, slot_phase
@@ -214,7 +214,7 @@ def panel_summary_rows(project: Project, result: ProjectResult) -> list[list[Any
                 pr.spaces_used,
                 pr.spaces_total,
                 pr.feeder.describe() if pr.feeder else "",
-                rotation_landing(p.feeder_rotation) if p.feeder_rotation else "",
+                fmt.landing(p.feeder_rotation),
                 len(pr.warnings),
             ]
         )

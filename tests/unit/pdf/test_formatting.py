@@ -52,3 +52,10 @@ def test_register_filters_adds_every_filter():
     env = Env()
     fmt.register_filters(env)
     assert set(env.filters) == set(fmt.FILTERS)
+
+
+def test_landing_in_the_installers_words() -> None:
+    # The balancer's wording (server.calc.balance.rotation_landing), shared by the PDF, export and report.
+    assert fmt.landing(1) == "A→B, B→C, C→A"
+    assert fmt.landing(2) == "A→C, B→A, C→B"
+    assert fmt.landing(0) == fmt.landing(None) == ""
